@@ -168,12 +168,12 @@ def causal_bound(game: Game) -> CausalBound:
 def strategy_from_table(table: np.ndarray, game: Game) -> DeterministicStrategy:
     """Per-party outputs of a joint-output table and a readable causal-order description."""
     outputs = np.stack(np.unravel_index(table, game.n_outputs), axis=-1)
-    lines = _describe(outputs, list(range(game.n_parties)), game.parties, {}, 0)
+    lines = _describe(outputs, list(range(game.n_parties)), game.parties, 0)
     return DeterministicStrategy(outputs, "\n".join(lines))
 
 
 def _describe(outputs: np.ndarray, active: list[int], names: tuple[str, ...],
-              fixed: dict[int, int], depth: int) -> list[str]:
+              depth: int) -> list[str]:
     """Recursive description: pick a party whose output ignores the others' inputs."""
     pad = "  " * depth
     if not active:
@@ -185,10 +185,11 @@ def _describe(outputs: np.ndarray, active: list[int], names: tuple[str, ...],
     else:
         raise ValueError("table is not a causal strategy: no party can act first")
     response = own[:, 0].tolist()
-    lines = [f"{pad}{names[k]} acts next: output = {response}[x_{names[k]}]"]
+    when = "first" if depth == 0 else "next"
+    lines = [f"{pad}{names[k]} acts {when}: outputs {response} on x_{names[k]} = 0, 1, ..."]
     rest = [j for j in active if j != k]
     for value in range(outputs.shape[k]) if rest else []:
         sub = np.take(outputs, [value], axis=k)
         lines.append(f"{pad}if x_{names[k]} = {value}:")
-        lines += _describe(sub, rest, names, {**fixed, k: value}, depth + 1)
+        lines += _describe(sub, rest, names, depth + 1)
     return lines
