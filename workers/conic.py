@@ -1,0 +1,171 @@
+"""Compile a robustness SDP into conic standard form, once per scenario.
+
+Standard form (shared by SCS and Clarabel):  minimise c.x  s.t.  A x + s = b,  s in K,
+with K a product of PSD cones, one per leaf of the causal structure (plus one for the free
+noise Omega in the generalised robustness).  Variables live only where the structure leaves
+freedom: per pattern, the null-space parameters z of :func:`workers.structures.pattern_systems`.
+The process W enters *only* through ``b = b_map @ w`` (w its coefficient vector), so one
+compiled problem is re-solved for every W of the scenario, reusing the solver's factorisation.
+
+Kinds:
+
+``random``       min r  s.t.  W + r 1° = sum_j W_j  (Araujo et al., NJP 17, 102001 (2015))
+``generalized``  min Tr(Om)/d_O  s.t.  W + Om = sum_j W_j,  Om >= 0 valid (same paper)
+
+r is not constrained to be >= 0: a negative optimum measures how far inside the separable
+set W lies (the reported robustness is max(r, 0); the signed value is kept as evidence).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from .basis import pattern_codes, to_coefficients
+from .cone_vectors import basis_to_cone, cone_size
+from .masks import valid_mask
+from .scenario import Scenario
+from .structures import CausalStructure, build_structure, pattern_systems
+from .validity import white_noise
+
+KINDS = ("random", "generalized")
+
+
+@dataclass(frozen=True)
+class ConicProblem:
+    """Compiled data of one robustness SDP.
+
+    Attributes
+    ----------
+    A, c
+        Constraint matrix and objective (fixed per scenario).
+    b_map
+        ``b = b_map @ w`` for the coefficient vector w of the process.
+    cone_dims
+        Side of each Hermitian PSD block (leaves first, then Omega for ``generalized``).
+    leaf_particular
+        (n_leaves, D^2): the particular-solution weight of each leaf per basis element.
+    spanned
+        Boolean mask over basis elements inside the span of the causal structure.
+    omega_index
+        Basis-element indices of the Omega variables (``generalized`` only).
+    """
+
+    scenario: Scenario
+    structure: CausalStructure
+    kind: str
+    fmt: str
+    A: sp.csc_matrix
+    c: np.ndarray
+    b_map: sp.csr_matrix
+    cone_dims: tuple[int, ...]
+    leaf_particular: np.ndarray
+    spanned: np.ndarray
+    omega_index: np.ndarray
+    n_z: int
+
+    @property
+    def n_leaves(self) -> int:
+        return self.structure.n_leaves
+
+    def b(self, w: np.ndarray) -> np.ndarray:
+        return self.b_map @ w
+
+    def block_slices(self) -> list[slice]:
+        """Row slice of each PSD block in the stacked cone vector."""
+        out, start = [], 0
+        for n in self.cone_dims:
+            size = cone_size(n, self.fmt)
+            out.append(slice(start, start + size))
+            start += size
+        return out
+
+
+def _null_parametrisation(codes: np.ndarray, systems: dict) -> tuple[list, int]:
+    """Assign z indices: per basis element, (element indices, first z index, null matrix)."""
+    blocks, n_z = [], 0
+    for p, sysm in systems.items():
+        q = sysm.null.shape[1]
+        if q == 0 or not sysm.spanned:
+            continue
+        idx = np.nonzero(codes == p)[0]
+        blocks.append((idx, n_z, sysm.null))
+        n_z += len(idx) * q
+    return blocks, n_z
+
+
+def _leaf_z_maps(blocks: list, n_leaves: int, D2: int, n_z: int) -> list[sp.csc_matrix]:
+    """For each leaf j the sparse map z -> coefficients of W_j (shape D^2 x n_z)."""
+    rows = [[] for _ in range(n_leaves)]
+    cols = [[] for _ in range(n_leaves)]
+    vals = [[] for _ in range(n_leaves)]
+    for idx, z0, null in blocks:
+        q = null.shape[1]
+        zcols = z0 + np.arange(len(idx))[:, None] * q + np.arange(q)[None, :]
+        for j in range(n_leaves):
+            nz = np.nonzero(np.abs(null[j]) > 1e-14)[0]
+            if len(nz) == 0:
+                continue
+            rows[j].append(np.repeat(idx, len(nz)))
+            cols[j].append(zcols[:, nz].reshape(-1))
+            vals[j].append(np.tile(null[j, nz], len(idx)))
+    out = []
+    for j in range(n_leaves):
+        if rows[j]:
+            r, c, v = np.concatenate(rows[j]), np.concatenate(cols[j]), np.concatenate(vals[j])
+        else:
+            r = c = np.zeros(0, dtype=np.int64)
+            v = np.zeros(0)
+        out.append(sp.csc_matrix((v, (r, c)), shape=(D2, n_z)))
+    return out
+
+
+def compile_problem(
+    scenario: Scenario, method: str, kind: str, fmt: str = "scs_complex"
+) -> ConicProblem:
+    """Build the conic form of the ``kind`` robustness for the structure ``method``."""
+    if kind not in KINDS:
+        raise ValueError(f"kind={kind!r}, expected one of {list(KINDS)}")
+    structure = build_structure(scenario, method)
+    dims = scenario.subsystem_dims
+    D = scenario.dim
+    codes = pattern_codes(dims)
+    systems = pattern_systems(structure, np.unique(codes))
+    m = structure.n_leaves
+    P = np.zeros((m, D * D))
+    spanned = np.zeros(D * D, dtype=bool)
+    for p, sysm in systems.items():
+        sel = codes == p
+        P[:, sel] = sysm.particular[:, None]
+        spanned[sel] = sysm.spanned
+    blocks, n_z = _null_parametrisation(codes, systems)
+    zmaps = _leaf_z_maps(blocks, m, D * D, n_z)
+    V = basis_to_cone(dims, fmt)
+    if kind == "random":
+        noise = to_coefficients(white_noise(scenario), dims)
+        extra = [sp.csc_matrix((P[j] * noise)[:, None]) for j in range(m)]
+        omega_index = np.zeros(0, dtype=np.int64)
+        c_extra = np.array([1.0])
+    else:
+        omega_index = np.nonzero(valid_mask(scenario))[0]
+        extra = [sp.diags(P[j]).tocsc()[:, omega_index] for j in range(m)]
+        c_extra = np.zeros(len(omega_index))
+        c_extra[omega_index == 0] = 1.0 / scenario.d_out_total
+    leaf_rows = [-(V @ sp.hstack([extra[j], zmaps[j]]).tocsc()) / D for j in range(m)]
+    cone_dims = [D] * m
+    if kind == "generalized":
+        om = sp.hstack([V[:, omega_index], sp.csc_matrix((V.shape[0], n_z))])
+        leaf_rows.append(-om.tocsc() / D)
+        cone_dims.append(D)
+    A = sp.vstack(leaf_rows).tocsc()
+    b_blocks = [V @ sp.diags(P[j]) / D for j in range(m)]
+    if kind == "generalized":
+        b_blocks.append(sp.csr_matrix((V.shape[0], D * D)))
+    b_map = sp.vstack(b_blocks).tocsr()
+    c = np.concatenate([c_extra, np.zeros(n_z)])
+    return ConicProblem(
+        scenario, structure, kind, fmt, A, c, b_map, tuple(cone_dims), P, spanned,
+        omega_index, n_z,
+    )

@@ -1,0 +1,166 @@
+"""Random and generalised robustness with their witnesses (Araujo et al., NJP 17, 102001 (2015)).
+
+:class:`RobustnessProblem` compiles one SDP per (scenario, structure, kind, solver) and
+re-solves it for every process; :func:`get_problem` caches them per worker process.
+The dual of the solve is read as a causal witness S with Tr(S W) = -(robustness) at the
+optimum, Tr(S 1°) = 1 (random) or Tr(S Om) <= 1 for all valid Om (generalised).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from functools import lru_cache
+
+import numpy as np
+
+from .basis import from_coefficients, to_coefficients
+from .cone_vectors import basis_to_cone, cone_to_matrix
+from .conic import ConicProblem, compile_problem
+from .scenario import Scenario
+from .solvers import RawSolution, SolverOptions, get_backend
+from .validity import check_shape
+
+FAILED = ("failed", "error", "infeasible", "unbounded")
+
+
+@dataclass(frozen=True)
+class RobustnessResult:
+    """One robustness solve and its evidence.
+
+    ``value`` is max(upper_bound, 0) when the solve succeeded, else nan.  ``upper_bound`` is
+    the primal objective, ``lower_bound`` the dual objective (both signed).  ``witness`` is the
+    operator S read from the dual, ``witness_value`` = Tr(S W).
+    """
+
+    kind: str
+    method: str
+    value: float
+    lower_bound: float
+    upper_bound: float
+    solver: str
+    status: str
+    raw_status: str
+    iterations: int
+    res_pri: float
+    res_dual: float
+    gap: float
+    solve_time: float
+    setup_time: float
+    witness_value: float
+    witness: np.ndarray | None = field(default=None, repr=False, compare=False)
+    leaves: tuple[np.ndarray, ...] | None = field(default=None, repr=False, compare=False)
+    dual_blocks: tuple[np.ndarray, ...] | None = field(default=None, repr=False, compare=False)
+    omega: np.ndarray | None = field(default=None, repr=False, compare=False)
+    message: str = ""
+    fallback_from: str = ""
+    raw: RawSolution | None = field(default=None, repr=False, compare=False)
+
+    @property
+    def ok(self) -> bool:
+        return self.status not in FAILED
+
+    @property
+    def accuracy(self) -> float:
+        """The solver's own accuracy: the largest of gap and residuals (nan if unknown)."""
+        vals = [v for v in (self.gap, self.res_pri, self.res_dual) if np.isfinite(v)]
+        return max(vals) if vals else float("nan")
+
+
+class RobustnessProblem:
+    """A compiled robustness SDP for one scenario; call :meth:`solve` with each W."""
+
+    def __init__(
+        self,
+        scenario: Scenario,
+        kind: str = "random",
+        method: str = "exact",
+        options: SolverOptions = SolverOptions(),
+    ) -> None:
+        backend_cls = get_backend(options.solver)
+        self.scenario, self.kind, self.method, self.options = scenario, kind, method, options
+        self.problem: ConicProblem = compile_problem(scenario, method, kind, backend_cls.fmt)
+        self.backend = backend_cls(self.problem, options)
+
+    def coefficients(self, W: np.ndarray) -> np.ndarray:
+        """Coefficient vector of W; raises if W leaves the span of the causal structure."""
+        W = check_shape(self.scenario, W)
+        w = to_coefficients(W, self.scenario.subsystem_dims)
+        outside = np.linalg.norm(w[~self.problem.spanned]) / max(np.linalg.norm(w), 1e-300)
+        if outside > 1e-7:
+            raise ValueError(
+                f"operator is not in the valid subspace of this scenario (relative residual "
+                f"{outside:.2e}); run the validity check first"
+            )
+        return w
+
+    def solve(
+        self,
+        W: np.ndarray,
+        warm_start: RobustnessResult | None = None,
+        keep_certificate: bool = False,
+    ) -> RobustnessResult:
+        """Solve for W; a failed solve is retried once with the other back-end if enabled."""
+        w = self.coefficients(W)
+        warm = warm_start.raw if warm_start is not None and self.backend.warm_startable else None
+        raw = self.backend.solve(self.problem.b(w), warm)
+        result = self._result(raw, w, keep_certificate)
+        if result.status in FAILED and self.options.fallback:
+            other = "CLARABEL" if self.options.solver.upper() == "SCS" else "SCS"
+            alt = get_problem(self.scenario, self.kind, self.method,
+                              replace(self.options, solver=other, fallback=False))
+            second = alt.solve(W, keep_certificate=keep_certificate)
+            return replace(second, fallback_from=f"{result.solver}:{result.status}")
+        return result
+
+    def _result(self, raw: RawSolution, w: np.ndarray, keep: bool) -> RobustnessResult:
+        nan = float("nan")
+        ok = raw.status not in FAILED and raw.x is not None
+        witness = leaves = duals = omega = None
+        wval = nan
+        if ok:
+            s_coef, duals = self._witness_coefficients(raw.y, keep)
+            witness = from_coefficients(s_coef, self.scenario.subsystem_dims)
+            wval = float(s_coef @ w / self.scenario.dim)
+            if keep:
+                leaves, omega = self._primal_blocks(raw.s)
+        value = max(raw.pobj, 0.0) if ok else nan
+        return RobustnessResult(
+            self.kind, self.method, value, raw.dobj if ok else nan, raw.pobj if ok else nan,
+            raw.solver, raw.status, raw.raw_status, raw.iterations, raw.res_pri, raw.res_dual,
+            raw.gap, raw.solve_time, raw.setup_time, wval, witness, leaves, duals, omega,
+            raw.message, "", raw,
+        )
+
+    def _witness_coefficients(self, y: np.ndarray, keep: bool):
+        """s_alpha = sum_j P_{j alpha} Tr(sigma_alpha Y_j): the witness read from the duals."""
+        prob = self.problem
+        V = basis_to_cone(self.scenario.subsystem_dims, prob.fmt)
+        slices = prob.block_slices()
+        s = np.zeros(prob.leaf_particular.shape[1])
+        for j in range(prob.n_leaves):
+            s += prob.leaf_particular[j] * (V.T @ y[slices[j]])
+        duals = None
+        if keep:
+            duals = tuple(cone_to_matrix(y[sl], n, prob.fmt)
+                          for sl, n in zip(slices, prob.cone_dims))
+        return s, duals
+
+    def _primal_blocks(self, s: np.ndarray):
+        prob = self.problem
+        mats = [cone_to_matrix(s[sl], n, prob.fmt) for sl, n in zip(prob.block_slices(),
+                                                                     prob.cone_dims)]
+        if prob.fmt != "scs_complex":
+            mats = [m / 2 for m in mats]
+        # cone_to_matrix returns the dual-pairing matrix; for a primal slack of the complex
+        # format this is exactly the matrix itself
+        leaves = tuple(mats[: prob.n_leaves])
+        omega = mats[prob.n_leaves] if self.kind == "generalized" else None
+        return leaves, omega
+
+
+@lru_cache(maxsize=32)
+def get_problem(
+    scenario: Scenario, kind: str, method: str, options: SolverOptions
+) -> RobustnessProblem:
+    """Cached :class:`RobustnessProblem` (one per worker process and configuration)."""
+    return RobustnessProblem(scenario, kind, method, options)

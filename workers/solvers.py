@@ -1,0 +1,204 @@
+"""Solver back-ends for compiled conic problems: a registry with capabilities as data.
+
+Each back-end maps its native status onto one shared set (:data:`STATUSES`) and returns a
+:class:`RawSolution`.  A back-end never raises for a numerical failure: the failure is the
+status (``"failed"``, ``"error"``) and the message is kept.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+
+from .conic import ConicProblem
+
+STATUSES = ("optimal", "optimal_inaccurate", "infeasible", "unbounded", "iteration_limit",
+            "time_limit", "failed", "error")
+
+
+@dataclass(frozen=True)
+class SolverOptions:
+    """Solver choice and accuracy.
+
+    Attributes
+    ----------
+    solver
+        ``"SCS"`` (first-order, default) or ``"CLARABEL"`` (interior point).
+    eps_abs, eps_rel
+        SCS's absolute/relative tolerances; Clarabel's ``tol_gap_abs/rel`` and ``tol_feas``.
+    max_iters
+        Iteration cap.
+    time_limit
+        Seconds per solve (None = no limit).
+    fallback
+        On a failed solve, retry once with the other back-end (documented in the result).
+    tol
+        Decision threshold: a robustness is called positive only above ``tol`` plus the
+        solver's own accuracy (see :mod:`workers.separability`).
+    """
+
+    solver: str = "SCS"
+    eps_abs: float = 1e-8
+    eps_rel: float = 1e-8
+    max_iters: int = 200_000
+    time_limit: float | None = None
+    fallback: bool = True
+    tol: float = 1e-6
+
+    def __post_init__(self) -> None:
+        if self.solver.upper() not in BACKENDS:
+            raise ValueError(f"solver={self.solver!r}, expected one of {sorted(BACKENDS)}")
+        for name in ("eps_abs", "eps_rel", "tol"):
+            v = getattr(self, name)
+            if not (v > 0 and np.isfinite(v)):
+                raise ValueError(f"{name}={v!r}, expected a positive number")
+        if self.max_iters < 1:
+            raise ValueError(f"max_iters={self.max_iters!r}, expected an integer >= 1")
+
+
+@dataclass(frozen=True)
+class RawSolution:
+    """What a back-end returns: iterates, status and the solver's own accuracy figures."""
+
+    solver: str
+    status: str
+    raw_status: str
+    x: np.ndarray | None
+    y: np.ndarray | None
+    s: np.ndarray | None
+    pobj: float
+    dobj: float
+    iterations: int
+    res_pri: float
+    res_dual: float
+    gap: float
+    solve_time: float
+    setup_time: float
+    message: str = ""
+    extra: dict = field(default_factory=dict)
+
+
+_SCS_STATUS = {1: "optimal", 2: "optimal_inaccurate", -1: "unbounded", -6: "unbounded",
+               -2: "infeasible", -7: "infeasible", -3: "failed", -4: "failed",
+               -5: "time_limit"}
+
+
+class ScsBackend:
+    """SCS called directly with its complex PSD cone; re-solves update only ``b``."""
+
+    name = "SCS"
+    fmt = "scs_complex"
+    warm_startable = True
+
+    def __init__(self, problem: ConicProblem, options: SolverOptions) -> None:
+        import scs
+
+        self.problem = problem
+        settings = dict(eps_abs=options.eps_abs, eps_rel=options.eps_rel,
+                        max_iters=options.max_iters, verbose=False)
+        if options.time_limit is not None:
+            settings["time_limit_secs"] = float(options.time_limit)
+        self.max_iters = options.max_iters
+        t0 = time.perf_counter()
+        b0 = np.zeros(problem.A.shape[0])
+        self._solver = scs.SCS(dict(A=problem.A, b=b0, c=problem.c),
+                               dict(cs=list(problem.cone_dims)), **settings)
+        self.setup_time = time.perf_counter() - t0
+
+    def solve(self, b: np.ndarray, warm: RawSolution | None = None) -> RawSolution:
+        t0 = time.perf_counter()
+        try:
+            self._solver.update(b=b)
+            if warm is not None and warm.x is not None:
+                sol = self._solver.solve(warm_start=True, x=warm.x, y=warm.y, s=warm.s)
+            else:
+                sol = self._solver.solve(warm_start=False)
+        except Exception as exc:  # noqa: BLE001 - a failure is a status, never an abort
+            return _error(self.name, exc, time.perf_counter() - t0)
+        info = sol["info"]
+        status = _SCS_STATUS.get(int(info["status_val"]), "failed")
+        if status != "optimal" and info["iter"] >= self.max_iters:
+            status = "iteration_limit"
+        return RawSolution(
+            self.name, status, str(info["status"]), sol["x"], sol["y"], sol["s"],
+            float(info["pobj"]), float(info["dobj"]), int(info["iter"]),
+            float(info["res_pri"]), float(info["res_dual"]), float(abs(info["gap"])),
+            time.perf_counter() - t0, self.setup_time,
+        )
+
+
+class ClarabelBackend:
+    """Clarabel (interior point) on the real 2n x 2n embedding of each Hermitian block."""
+
+    name = "CLARABEL"
+    fmt = "upper_real"
+    warm_startable = False
+
+    def __init__(self, problem: ConicProblem, options: SolverOptions) -> None:
+        import clarabel
+
+        self.problem = problem
+        st = clarabel.DefaultSettings()
+        st.verbose = False
+        st.tol_gap_abs = options.eps_abs
+        st.tol_gap_rel = options.eps_rel
+        st.tol_feas = max(options.eps_abs, 1e-12)
+        st.max_iter = min(options.max_iters, 500)
+        if options.time_limit is not None:
+            st.time_limit = float(options.time_limit)
+        self._settings = st
+        self._cones = [clarabel.PSDTriangleConeT(2 * n) for n in problem.cone_dims]
+        n = problem.A.shape[1]
+        self._P = sp.csc_matrix((n, n))
+        self.setup_time = 0.0
+
+    def solve(self, b: np.ndarray, warm: RawSolution | None = None) -> RawSolution:
+        import clarabel
+
+        t0 = time.perf_counter()
+        try:
+            solver = clarabel.DefaultSolver(self._P, self.problem.c, self.problem.A, b,
+                                            self._cones, self._settings)
+            sol = solver.solve()
+        except Exception as exc:  # noqa: BLE001 - a failure is a status, never an abort
+            return _error(self.name, exc, time.perf_counter() - t0)
+        raw = str(sol.status)
+        status = _clarabel_status(raw)
+        x, z, s = (np.array(v) for v in (sol.x, sol.z, sol.s))
+        info = solver.info if hasattr(solver, "info") else None
+        res_pri = float(getattr(info, "res_primal", np.nan)) if info is not None else np.nan
+        res_dual = float(getattr(info, "res_dual", np.nan)) if info is not None else np.nan
+        return RawSolution(
+            self.name, status, raw, x, z, s, float(sol.obj_val), float(sol.obj_val_dual),
+            int(sol.iterations), res_pri, res_dual,
+            float(abs(sol.obj_val - sol.obj_val_dual)), time.perf_counter() - t0, 0.0,
+        )
+
+
+def _clarabel_status(raw: str) -> str:
+    key = raw.split(".")[-1].lower()
+    return {"solved": "optimal", "almostsolved": "optimal_inaccurate",
+            "primalinfeasible": "infeasible", "almostprimalinfeasible": "infeasible",
+            "dualinfeasible": "unbounded", "almostdualinfeasible": "unbounded",
+            "maxiterations": "iteration_limit", "maxtime": "time_limit"}.get(key, "failed")
+
+
+def _error(name: str, exc: BaseException, elapsed: float) -> RawSolution:
+    msg = f"{type(exc).__name__}: {exc}".splitlines()[0][:300]
+    nan = float("nan")
+    return RawSolution(name, "error", "exception", None, None, None, nan, nan, 0, nan, nan,
+                       nan, elapsed, 0.0, msg)
+
+
+BACKENDS = {"SCS": ScsBackend, "CLARABEL": ClarabelBackend}
+
+
+def get_backend(name: str):
+    """The back-end class for ``name``; the error lists the known names."""
+    key = name.upper()
+    if key not in BACKENDS:
+        raise ValueError(f"solver={name!r}, expected one of {sorted(BACKENDS)}")
+    return BACKENDS[key]

@@ -1,0 +1,183 @@
+"""Causal structures: decompositions W = sum_j W_j into PSD leaves with pattern constraints.
+
+Every characterisation of MATH.md section 4 has the same shape: PSD leaves W_j (one per
+ordering of the parties), and for groups of leaves the condition
+``_{[1-X] Y} (sum_{j in G} W_j) = 0``.  In the product basis that condition says: the summed
+coefficient of every pattern that is nontrivial on X and trivial on Y vanishes.  So per
+pattern the leaves' coefficients obey a small linear system, solved once per scenario by
+:func:`pattern_systems`.
+
+Structures offered (``method``):
+
+``exact``         N <= 3: bipartite (Oreshkov-Costa-Brukner 2012; Araujo et al. 2015) and the
+                  tripartite dynamical-order characterisation (Wechs, Abbott, Branciard,
+                  NJP 21, 013027 (2019)).
+``sufficient``    any N: prefix conditions on every partial sum (exact for N <= 3).
+``necessary``     any N: the first party's systems are handed to a later party (its receiver),
+                  and the remaining N-1 parties are tested recursively, down to the exact
+                  tripartite form (equals ``exact`` for N <= 3).
+``fixed_orders``  mixtures of fixed-order combs; a sufficient condition only.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+from itertools import permutations
+from typing import Sequence
+
+import numpy as np
+
+from .masks import party_bits
+from .scenario import Scenario
+
+METHODS = ("exact", "sufficient", "necessary", "fixed_orders")
+
+
+@dataclass(frozen=True)
+class Group:
+    """Condition ``_{[1-X] Y} sum_{j in leaves} W_j = 0`` as bitmasks X = x_bits, Y = y_bits."""
+
+    leaves: tuple[int, ...]
+    x_bits: int
+    y_bits: int
+
+    def forbids(self, pattern: int) -> bool:
+        return bool(pattern & self.x_bits) and not (pattern & self.y_bits)
+
+
+@dataclass(frozen=True)
+class CausalStructure:
+    """Leaves (each labelled by an ordering of the parties) and the group conditions."""
+
+    method: str
+    leaves: tuple[tuple[int, ...], ...]
+    groups: tuple[Group, ...]
+
+    @property
+    def n_leaves(self) -> int:
+        return len(self.leaves)
+
+
+@dataclass(frozen=True)
+class PatternSystem:
+    """Solution of one pattern's linear system  C x = h t  over the leaf coefficients x.
+
+    ``x = particular * t + null @ z`` for the target coefficient t and free parameters z;
+    ``spanned`` is False when no x exists for t != 0 (the pattern is outside the cone's span).
+    ``rows`` is C, kept for building witnesses from dual variables.
+    """
+
+    particular: np.ndarray
+    null: np.ndarray
+    spanned: bool
+    rows: np.ndarray
+    rhs: np.ndarray
+
+
+def _prefix_groups(
+    scenario: Scenario, leaves: list[tuple[int, ...]], rest_bits
+) -> list[Group]:
+    """Prefix conditions: for every prefix (k1..kn) of some leaf, on the sum of its leaves."""
+    f_bit = 1 << scenario.future_index
+    groups = []
+    n = scenario.n_parties
+    for length in range(1, n + 1):
+        prefixes = sorted({leaf[:length] for leaf in leaves})
+        for pre in prefixes:
+            members = tuple(j for j, leaf in enumerate(leaves) if leaf[:length] == pre)
+            x = 1 << scenario.output_index(pre[-1])
+            groups.append(Group(members, x, rest_bits(pre) | f_bit))
+    return groups
+
+
+def _past_group(scenario: Scenario, n_leaves: int) -> Group:
+    """``_{[1-P] A^{all} F} W = 0`` on the total (the global past comes first)."""
+    everything = (1 << scenario.future_index)
+    for k in range(scenario.n_parties):
+        everything |= party_bits(scenario, k)
+    return Group(tuple(range(n_leaves)), 1 << scenario.past_index, everything)
+
+
+def _plain_rest(scenario: Scenario):
+    def rest(prefix: tuple[int, ...]) -> int:
+        bits = 0
+        for k in range(scenario.n_parties):
+            if k not in prefix:
+                bits |= party_bits(scenario, k)
+        return bits
+
+    return rest
+
+
+def _receiver(k: int, remaining: Sequence[int], n: int) -> int:
+    """The party that receives k's systems: the next remaining party after k, cyclically."""
+    for step in range(1, n + 1):
+        cand = (k + step) % n
+        if cand in remaining:
+            return cand
+    raise ValueError("no remaining party to receive systems")
+
+
+def _merged_rest(scenario: Scenario):
+    """Rest systems when each early party's systems travel to its receiver (``necessary``)."""
+    n = scenario.n_parties
+
+    def rest(prefix: tuple[int, ...]) -> int:
+        carried = {k: party_bits(scenario, k) for k in range(n)}
+        for depth, k in enumerate(prefix):
+            remaining = [j for j in range(n) if j not in prefix[: depth + 1]]
+            if n - depth >= 4 and remaining:  # merging stops at the exact tripartite level
+                r = _receiver(k, remaining, n)
+                carried[r] |= carried[k]
+        bits = 0
+        for j in range(n):
+            if j not in prefix:
+                bits |= carried[j]
+        return bits
+
+    return rest
+
+
+@lru_cache(maxsize=32)
+def build_structure(scenario: Scenario, method: str) -> CausalStructure:
+    """The causal structure for ``method`` (one of :data:`METHODS`)."""
+    if method not in METHODS:
+        raise ValueError(f"method={method!r}, expected one of {list(METHODS)}")
+    n = scenario.n_parties
+    if method == "exact" and n > 3:
+        raise ValueError(
+            f"method='exact' is known only for N <= 3 parties (got N={n}); "
+            "use 'sufficient' and 'necessary' for bounds"
+        )
+    leaves = list(permutations(range(n)))
+    rest = _merged_rest(scenario) if method == "necessary" else _plain_rest(scenario)
+    groups = _prefix_groups(scenario, leaves, rest) + [_past_group(scenario, len(leaves))]
+    if method == "fixed_orders":  # every condition on every comb separately
+        groups = [Group((j,), g.x_bits, g.y_bits) for g in groups for j in g.leaves]
+    return CausalStructure(method, tuple(leaves), tuple(groups))
+
+
+def pattern_systems(structure: CausalStructure, patterns: Sequence[int]) -> dict[int, PatternSystem]:
+    """Solve the per-pattern linear system of every pattern (SVD, rank tolerance 1e-10)."""
+    m = structure.n_leaves
+    out = {}
+    for p in patterns:
+        rows = [np.ones(m)]
+        for g in structure.groups:
+            if g.forbids(int(p)):
+                r = np.zeros(m)
+                r[list(g.leaves)] = 1.0
+                rows.append(r)
+        C = np.array(rows)
+        h = np.zeros(len(rows))
+        h[0] = 1.0
+        U, s, Vt = np.linalg.svd(C)
+        rank = int(np.sum(s > 1e-10 * max(s[0], 1.0)))
+        null = Vt[rank:].T.copy()
+        part = np.linalg.pinv(C, rcond=1e-10) @ h
+        spanned = bool(np.allclose(C @ part, h, atol=1e-9))
+        if not spanned:
+            part = np.zeros(m)
+        out[int(p)] = PatternSystem(part, null, spanned, C, h)
+    return out
