@@ -122,7 +122,7 @@ def normalise_instrument(M: np.ndarray, d_in: int, d_out: int) -> np.ndarray:
 
 def random_instrument(rng: np.random.Generator, n_x: int, n_a: int, d_in: int, d_out: int,
                       real: bool = False) -> np.ndarray:
-    """Random valid instrument: Ginibre PSD operators, normalised by :func:`normalise_instrument`."""
+    """Random valid instrument: Ginibre PSD operators made valid by :func:`normalise_instrument`."""
     d = d_in * d_out
     G = rng.normal(size=(n_x, n_a, d, d))
     if not real:
@@ -211,7 +211,8 @@ def seesaw(W: np.ndarray, dims: Sequence[tuple[int, int]], game: Game, n_starts:
     game : Game
         The game; its coefficients weight the behaviour.
     n_starts : int
-        Random starts; start i uses child i of ``SeedSequence(seed)``.
+        Random starts; start i uses child i of ``SeedSequence(seed)`` (a SeedSequence passed
+        in is spawned from, which advances it).
     max_iter, stop_tol : int, float
         At most ``max_iter`` rounds per start; stop when a round gains less than ``stop_tol``.
     solver, solver_tol : str, float
@@ -234,9 +235,9 @@ def seesaw(W: np.ndarray, dims: Sequence[tuple[int, int]], game: Game, n_starts:
               in zip(game.n_inputs, game.n_outputs, dims)]
     sdps = [_PartySDP(*shape, real) for shape in shapes]
     options = _solver_options(solver, solver_tol)
+    root = seed if isinstance(seed, np.random.SeedSequence) else np.random.SeedSequence(seed)
     runs = []
-    for child in np.random.SeedSequence(seed).spawn(n_starts) if isinstance(seed, int) \
-            else seed.spawn(n_starts):
+    for child in root.spawn(n_starts):
         rng = np.random.default_rng(child)
         start = [random_instrument(rng, *shape, real=real) for shape in shapes]
         runs.append(_one_start(W, dims, game, sdps, start, max_iter, stop_tol, solver, options))
