@@ -77,6 +77,11 @@ def behaviour(W: np.ndarray, instruments: Sequence[np.ndarray],
               dims: Sequence[tuple[int, int]]) -> np.ndarray:
     """The behaviour p[a_1..a_N, x_1..x_N] = Tr[W ⊗_k M^k[x_k, a_k]] (real part)."""
     sizes = [int(d_in) * int(d_out) for d_in, d_out in dims]
+    shapes = [np.shape(m) for m in instruments]
+    if len(shapes) != len(sizes) or any(len(s) != 4 or s[2:] != (d, d)
+                                        for s, d in zip(shapes, sizes)):
+        raise ValueError(f"instruments have shapes {shapes}, expected one (n_x, n_a, d, d) "
+                         f"array per party with d = {sizes}")
     w, inst, coef = _subscripts(len(sizes), None)
     tensor = np.asarray(W).reshape(sizes + sizes)
     p = np.einsum(",".join([w] + inst) + "->" + coef, tensor, *instruments, optimize=True)

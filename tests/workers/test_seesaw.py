@@ -217,3 +217,5 @@ def test_bad_input_messages() -> None:
         seesaw(ocb_process(), QUBITS, game, solver="MOSEK")
     with pytest.raises(ValueError, match=r"has 3 parties"):
         seesaw(ocb_process(), [(2, 2)] * 3, game)
+    with pytest.raises(ValueError, match=r"instruments have shapes"):
+        behaviour(ocb_process(), ocb_instruments()[:1], QUBITS)
