@@ -1,0 +1,152 @@
+"""Causal separability verdicts from robustness solves, with the margin that decided them.
+
+A process is causally separable iff its random robustness is 0 (the white-noise process is
+in the interior of the separable set; Araujo et al., NJP 17, 102001 (2015)).  The verdict is
+taken from the random robustness when it is computed, else from the generalised one:
+
+* ``nonseparable`` when the solver's *lower* bound exceeds ``tol + accuracy``;
+* ``separable`` when its *upper* bound is below ``tol - accuracy``;
+* ``undecided`` otherwise, with the reason (solver failure, margin inside the accuracy, or,
+  for N >= 4, a value between the necessary and the sufficient bound).
+
+For N <= 3 the exact characterisation is used.  For N >= 4 the robustness with respect to the
+``necessary`` set is a lower bound and with respect to the ``sufficient`` set an upper bound
+on the true robustness (Wechs, Abbott, Branciard, NJP 21, 013027 (2019)).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .robustness import RobustnessResult, get_problem
+from .scenario import Scenario
+from .solvers import SolverOptions
+
+VERDICTS = ("separable", "nonseparable", "undecided")
+QUANTITIES = ("random", "generalized")
+
+
+@dataclass(frozen=True)
+class Bounds:
+    """Lower and upper bound on one robustness, and the results they came from."""
+
+    kind: str
+    lower: float
+    upper: float
+    lower_from: RobustnessResult
+    upper_from: RobustnessResult
+
+    @property
+    def exact(self) -> bool:
+        return self.lower_from is self.upper_from
+
+    @property
+    def value(self) -> float | None:
+        """The robustness when the characterisation is exact, else None."""
+        return self.upper_from.value if self.exact else None
+
+
+@dataclass(frozen=True)
+class SeparabilityResult:
+    """Verdict, margin, reason and every robustness solve behind them."""
+
+    verdict: str
+    margin: float
+    reason: str
+    methods: tuple[str, ...]
+    bounds: dict[str, Bounds] = field(repr=False)
+
+    def robustness(self, kind: str) -> float | None:
+        b = self.bounds.get(kind)
+        return None if b is None else b.value
+
+    def witness_result(self) -> RobustnessResult | None:
+        """The solve whose dual certifies nonseparability (the lower-bound side)."""
+        for kind in QUANTITIES:
+            if kind in self.bounds:
+                return self.bounds[kind].lower_from
+        return None
+
+
+def methods_for(scenario: Scenario, method: str) -> tuple[str, ...]:
+    """Structures to solve for ``method`` ('auto' picks exact, or both bounds for N >= 4)."""
+    if method == "auto":
+        return ("exact",) if scenario.n_parties <= 3 else ("necessary", "sufficient")
+    if method == "bounds":
+        return ("necessary", "sufficient")
+    return (method,)
+
+
+def _bounds(kind: str, results: dict[str, RobustnessResult]) -> Bounds:
+    if "exact" in results:
+        r = results["exact"]
+        return Bounds(kind, r.lower_bound, r.upper_bound, r, r)
+    low = results.get("necessary") or results.get("exact")
+    up = results.get("sufficient") or results.get("fixed_orders") or low
+    low = low or up
+    return Bounds(kind, low.lower_bound, up.upper_bound, low, up)
+
+
+def decide(b: Bounds, tol: float) -> tuple[str, float, str]:
+    """Verdict, margin and reason from bounds on a robustness."""
+    lo, up = b.lower_from, b.upper_from
+    for r in (lo, up):
+        if not r.ok:
+            return "undecided", float("nan"), f"{r.method} solve failed: {r.solver} {r.status}"
+    acc_lo = lo.accuracy if np.isfinite(lo.accuracy) else 0.0
+    acc_up = up.accuracy if np.isfinite(up.accuracy) else 0.0
+    if b.lower > tol + acc_lo:
+        return "nonseparable", b.lower - tol - acc_lo, (
+            f"{b.kind} robustness >= {b.lower:.3e} ({lo.method}) exceeds tol {tol:.1e} "
+            f"+ accuracy {acc_lo:.1e}")
+    if b.upper < tol - acc_up:
+        return "separable", tol - acc_up - b.upper, (
+            f"{b.kind} robustness <= {b.upper:.3e} ({up.method}) is below tol {tol:.1e} "
+            f"- accuracy {acc_up:.1e}")
+    if not b.exact and b.lower <= tol + acc_lo and b.upper >= tol - acc_up:
+        gap_reason = "between the bounds" if b.upper > tol + acc_up else "inside the accuracy"
+        return "undecided", 0.0, (
+            f"{b.kind} robustness in [{b.lower:.3e}, {b.upper:.3e}] ({lo.method} .. "
+            f"{up.method}): {gap_reason}")
+    return "undecided", 0.0, (
+        f"{b.kind} robustness in [{b.lower:.3e}, {b.upper:.3e}] is within tol {tol:.1e} "
+        f"+/- solver accuracy")
+
+
+def analyse(
+    scenario: Scenario,
+    W: np.ndarray,
+    quantities: tuple[str, ...] = QUANTITIES,
+    method: str = "auto",
+    options: SolverOptions = SolverOptions(),
+    keep_certificate: bool = False,
+) -> SeparabilityResult:
+    """Decide causal separability of W and compute the requested robustness measures.
+
+    Parameters
+    ----------
+    scenario, W
+        The scenario and a (valid) process operator in its subsystem order.
+    quantities
+        Any of ``"random"``, ``"generalized"``.
+    method
+        ``"auto"`` (exact for N <= 3, necessary + sufficient bounds for N >= 4), ``"bounds"``,
+        or one structure of :data:`workers.structures.METHODS`.
+    options
+        Solver choice, tolerances and the decision threshold ``tol``.
+    """
+    bad = [q for q in quantities if q not in QUANTITIES]
+    if bad or not quantities:
+        raise ValueError(f"quantities={list(quantities)}, expected a non-empty subset of "
+                         f"{list(QUANTITIES)}")
+    methods = methods_for(scenario, method)
+    bounds = {}
+    for kind in quantities:
+        res = {m: get_problem(scenario, kind, m, options).solve(W, keep_certificate=keep_certificate)
+               for m in methods}
+        bounds[kind] = _bounds(kind, res)
+    deciding = bounds["random"] if "random" in bounds else bounds[quantities[0]]
+    verdict, margin, reason = decide(deciding, options.tol)
+    return SeparabilityResult(verdict, margin, reason, methods, bounds)
