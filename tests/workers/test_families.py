@@ -13,13 +13,20 @@ from workers.scenario import Scenario
 from workers.validity import check_validity
 
 
-@pytest.mark.parametrize("proc", [ocb_process(), quantum_switch(2), quantum_switch(3),
-                                  lugano_process()], ids=lambda p: p.name)
+@pytest.mark.parametrize("proc", [ocb_process(), quantum_switch(2), lugano_process()],
+                         ids=lambda p: p.name)
 def test_named_processes_valid(proc):
     """OCB (Oreshkov, Costa, Brukner 2012), quantum switch (Chiribella et al. 2013; Araujo et
     al. 2015), Lugano (Baumeler & Wolf 2016) are valid process operators."""
     rep = check_validity(proc.scenario, proc.matrix)
     assert rep.valid, rep.problems()
+
+
+@pytest.mark.slow
+def test_qutrit_switch_valid():
+    """The quantum switch with a qutrit target (2916 x 2916) is valid (Araujo et al. 2015)."""
+    p = quantum_switch(3)
+    assert check_validity(p.scenario, p.matrix).valid
 
 
 def test_switch_is_rank_one_with_trace_d_out():
