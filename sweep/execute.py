@@ -1,0 +1,159 @@
+"""Running a sweep on dask: clients for each kind of cluster, submission, progress, resume.
+
+The driver is the only process that touches the HDF5 file.  Tasks are
+:func:`sweep.task.run_samples` calls on plain data (the spec as JSON and a list of sample
+indices), submitted with ``pure=False`` and unique keys; results are appended as they arrive.
+A worker that dies has its tasks re-run by dask; a sample already stored is never written
+twice.  Ctrl-C cancels the outstanding tasks, closes the file and re-raises: rerunning the
+same command resumes.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import sys
+import time
+import uuid
+from dataclasses import dataclass
+from typing import Iterator, TextIO
+
+from .errors import UserError
+from .plan import Plan
+from .spec import Spec
+from .spec_run import RunSpec
+from .storage import ResultFile
+from .task import run_samples
+
+ONE_THREAD = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
+
+
+@dataclass(frozen=True)
+class SweepOutcome:
+    """What a call to :func:`run_sweep` did."""
+
+    path: str
+    n_samples: int
+    already_done: int
+    computed: int
+    elapsed: float
+
+
+class Progress:
+    """A one-line text progress bar with rate and ETA (stderr)."""
+
+    def __init__(self, total: int, enabled: bool, stream: TextIO = sys.stderr) -> None:
+        self.total, self.enabled, self.stream = total, enabled, stream
+        self.done, self.t0, self.last = 0, time.monotonic(), 0.0
+
+    def update(self, n: int) -> None:
+        self.done += n
+        t = time.monotonic()
+        if self.enabled and (t - self.last > 0.2 or self.done >= self.total):
+            self.last = t
+            rate = self.done / max(t - self.t0, 1e-9)
+            eta = (self.total - self.done) / rate if rate > 0 else float("inf")
+            width = 30
+            fill = int(width * self.done / max(self.total, 1))
+            self.stream.write(f"\r[{'#' * fill}{'.' * (width - fill)}] {self.done}/{self.total}"
+                              f"  {rate:.1f} samples/s  ETA {eta:.0f} s ")
+            self.stream.flush()
+
+    def close(self) -> None:
+        if self.enabled and self.total:
+            self.stream.write("\n")
+
+
+def _jobqueue_cluster(run: RunSpec):
+    try:
+        import dask_jobqueue
+    except ImportError:
+        raise UserError("run.cluster='jobqueue' needs dask-jobqueue: pip install "
+                        "'orderless[jobqueue]'") from None
+    jq = run.jobqueue
+    cls = {"slurm": "SLURMCluster", "pbs": "PBSCluster", "sge": "SGECluster",
+           "lsf": "LSFCluster"}[jq.system]
+    cluster = getattr(dask_jobqueue, cls)(
+        cores=jq.cores, processes=jq.processes, memory=jq.memory, walltime=jq.walltime,
+        queue=jq.queue, account=jq.account, job_extra_directives=list(jq.extra_directives),
+        job_script_prologue=[*(f"export {k}={v}" for k, v in ONE_THREAD.items()),
+                             *jq.prologue])
+    cluster.scale(jobs=jq.jobs)
+    return cluster
+
+
+@contextlib.contextmanager
+def open_client(run: RunSpec) -> Iterator:
+    """A dask Client for ``run`` (local, address or jobqueue); closed on exit."""
+    import dask
+    from distributed import Client, LocalCluster
+    if run.cluster == "address":
+        try:
+            client = Client(run.address, timeout="10s")
+        except (OSError, TimeoutError) as exc:
+            raise UserError(f"run.address={run.address!r}: cannot reach the scheduler "
+                            f"({exc}); expected a running dask scheduler") from None
+        with client:
+            yield client
+        return
+    with dask.config.set({"distributed.nanny.pre-spawn-environ": ONE_THREAD}):
+        if run.cluster == "jobqueue":
+            cluster = _jobqueue_cluster(run)
+        else:
+            n = run.workers or os.cpu_count() or 1
+            cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
+                                   dashboard_address=None)
+        with cluster, Client(cluster) as client:
+            yield client
+
+
+def _submit_all(client, spec_json: str, tasks: list[list[int]]):
+    tag = uuid.uuid4().hex[:8]
+    return [client.submit(run_samples, spec_json, t, pure=False,
+                          key=f"orderless-{tag}-{t[0]}-{t[-1]}") for t in tasks]
+
+
+def _run_dask(store: ResultFile, spec_json: str, tasks, run: RunSpec, bar: Progress) -> None:
+    from distributed import as_completed
+    with open_client(run) as client:
+        futures = _submit_all(client, spec_json, tasks)
+        try:
+            for fut in as_completed(futures):
+                rows = fut.result()
+                bar.update(store.append(rows))
+                fut.release()
+        except BaseException:
+            client.cancel(futures)
+            raise
+
+
+def _run_serial(store: ResultFile, spec_json: str, tasks, bar: Progress) -> None:
+    for t in tasks:
+        bar.update(store.append(run_samples(spec_json, t)))
+
+
+def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
+    """Compute every sample of ``spec`` missing from ``out`` on the cluster ``run``."""
+    run = run or spec.run
+    plan = Plan(spec)
+    t0 = time.monotonic()
+    with ResultFile(out, plan) as store:
+        done = store.done_indices()
+        missing = [i for i in range(plan.n_samples) if i not in done]
+        tasks = plan.tasks(missing, run.samples_per_task)
+        bar = Progress(len(missing), run.progress)
+        store.start_run(run.cluster)
+        state = "interrupted"
+        try:
+            if tasks:
+                spec_json = spec.model_dump_json()
+                if run.cluster == "serial":
+                    _run_serial(store, spec_json, tasks, bar)
+                else:
+                    _run_dask(store, spec_json, tasks, run, bar)
+            state = "complete"
+        finally:
+            bar.close()
+            store.finish(state)
+        computed = store.run_entry["computed"]
+    return SweepOutcome(str(out), plan.n_samples, len(done), computed, time.monotonic() - t0)

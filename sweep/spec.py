@@ -1,0 +1,229 @@
+"""The job spec: one frozen pydantic model family, the single source of truth of the schema.
+
+A spec has four sections: ``scenario`` (dims, global past/future), ``family`` (what operators
+to analyse), ``grid`` (axes over any numeric family parameter) and ``compute`` (what to
+compute, solver, samples, seed); ``run`` (where to run) does not change results and is left out
+of the spec hash.  ``python -m sweep.spec --markdown`` prints the reference from this model.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import sys
+from pathlib import Path
+from typing import Annotated, Any, Literal, Union
+
+import yaml
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+
+from .errors import UserError
+from .spec_run import RunSpec
+
+SCHEMA_VERSION = 1
+
+
+class Strict(BaseModel):
+    model_config = ConfigDict(frozen=True, extra="forbid")
+
+
+class ScenarioSpec(Strict):
+    """Parties and their dimensions, in subsystem order P, A1_I, A1_O, ..., F."""
+
+    dims: list[Annotated[int, Field(ge=1)]] = Field(
+        min_length=2, description="input then output dimension per party: [dI1, dO1, dI2, ...]")
+    d_past: int = Field(1, ge=1, description="dimension of the global past P (1 = absent)")
+    d_future: int = Field(1, ge=1, description="dimension of the global future F (1 = absent)")
+    names: list[str] | None = Field(None, description="party names (default A, B, C, ...)")
+
+    @model_validator(mode="after")
+    def _even(self) -> "ScenarioSpec":
+        if len(self.dims) % 2:
+            raise ValueError(f"dims={self.dims} has {len(self.dims)} entries, expected an even "
+                             "number (input then output dimension per party)")
+        if self.names is not None and len(self.names) != len(self.dims) // 2:
+            raise ValueError(f"names={self.names} has {len(self.names)} entries, expected "
+                             f"{len(self.dims) // 2}")
+        return self
+
+
+class NamedFamily(Strict):
+    """A published process (MATH.md section 6), optionally mixed with white noise."""
+
+    kind: Literal["named"]
+    name: Literal["ocb", "quantum_switch", "lugano"] = Field(description="the process")
+    d: int | None = Field(None, ge=1, description="target dimension (quantum_switch only)")
+    weight: float = Field(1.0, ge=0.0, le=1.0,
+                          description="white-noise mixture weight p of p W + (1-p) 1°")
+
+
+class EnsembleFamily(Strict):
+    """A random ensemble with its measure named (MATH.md section 8; workers/ensembles.py)."""
+
+    kind: Literal["ensemble"]
+    measure: Literal["valid_direction", "wishart", "comb", "comb_mixture"] = Field(
+        description="the sampling measure, documented in workers/ensembles.py")
+    u: float | None = Field(None, ge=0.0, le=1.0, description=(
+        "valid_direction: fraction of the distance to the PSD boundary (null = uniform)"))
+    rank: int | None = Field(None, ge=1, description="wishart: Ginibre columns (null = full)")
+    order: list[int] | None = Field(None, description="comb: party order (null = uniform)")
+    memory_dim: int = Field(2, ge=1, description="comb, comb_mixture: memory dimension")
+    n_combs: int = Field(2, ge=1, description="comb_mixture: number of combs mixed")
+    weight: float = Field(1.0, ge=0.0, le=1.0,
+                          description="white-noise mixture weight p of p W + (1-p) 1°")
+
+
+class FilesFamily(Strict):
+    """Operators read from files: ``.npy`` of shape (D, D) or (n, D, D), or HDF5 datasets."""
+
+    kind: Literal["files"]
+    paths: list[str] = Field(min_length=1, description="files, relative to the spec's folder")
+    dataset: str | None = Field(None, description="HDF5 dataset name (required for .h5 files)")
+    weight: float = Field(1.0, ge=0.0, le=1.0,
+                          description="white-noise mixture weight p of p W + (1-p) 1°")
+
+
+Family = Annotated[Union[NamedFamily, EnsembleFamily, FilesFamily], Field(discriminator="kind")]
+
+
+class Axis(Strict):
+    """One grid axis: a numeric family parameter and its values (list or linspace)."""
+
+    param: str = Field(description="a numeric field of the family, e.g. weight, u, rank")
+    values: list[float] | None = Field(None, min_length=1, description="explicit values")
+    start: float | None = Field(None, description="linspace start (with stop, num)")
+    stop: float | None = Field(None, description="linspace stop")
+    num: int | None = Field(None, ge=1, description="linspace number of points")
+
+    @model_validator(mode="after")
+    def _one_form(self) -> "Axis":
+        lin = (self.start, self.stop, self.num)
+        if (self.values is None) == all(v is None for v in lin) or (
+                self.values is None and any(v is None for v in lin)):
+            raise ValueError(f"axis {self.param!r}: give either values or all of start, stop, "
+                             "num")
+        return self
+
+    def points(self) -> list[float]:
+        if self.values is not None:
+            return list(self.values)
+        n = self.num
+        step = 0.0 if n == 1 else (self.stop - self.start) / (n - 1)
+        return [self.start + i * step for i in range(n)]
+
+
+class GameSpec(Strict):
+    """Optional causal-game quantity: the best value found by see-saw (a lower bound)."""
+
+    name: Literal["ocb_guess", "both_guess", "lugano_game"] = Field(description="the game")
+    starts: int = Field(3, ge=1, description="see-saw random starts per sample")
+    max_iter: int = Field(50, ge=1, description="see-saw rounds per start")
+
+
+class ComputeSpec(Strict):
+    """What to compute for every sample, and how."""
+
+    validity: bool = Field(True, description="check validity first; invalid -> status 'invalid'")
+    robustness: list[Literal["random", "generalized"]] = Field(
+        default_factory=lambda: ["random"], description="robustness measures (verdict from "
+        "the random one if present); empty = no verdict")
+    method: Literal["auto", "exact", "bounds", "sufficient", "necessary", "fixed_orders"] = Field(
+        "auto", description="separability characterisation (auto: exact N<=3, bounds N>=4)")
+    solver: Literal["SCS", "CLARABEL"] = Field("SCS", description="SDP back-end")
+    eps: float = Field(1e-6, gt=0, description="solver eps_abs = eps_rel")
+    max_iters: int = Field(200_000, ge=1, description="solver iteration cap")
+    tol: float = Field(1e-6, gt=0, description="decision threshold on the robustness")
+    samples: int = Field(1, ge=1, description="samples per grid point (1 for deterministic "
+                         "families)")
+    seed: int = Field(0, ge=0, description="root seed; sample i uses SeedSequence(seed, "
+                      "spawn_key=(i,))")
+    store_operators: bool = Field(False, description="store each operator in the file")
+    store_witnesses: bool = Field(False, description="store each witness in the file")
+    game: GameSpec | None = Field(None, description="optional causal-game quantity")
+
+
+class Spec(Strict):
+    """A whole job spec."""
+
+    scenario: ScenarioSpec | None = Field(None, description="required unless the family is "
+                                          "named (then it must match if given)")
+    family: Family
+    grid: list[Axis] = Field(default_factory=list, description="axes; the grid is their product")
+    compute: ComputeSpec = Field(default_factory=ComputeSpec)
+    run: RunSpec = Field(default_factory=RunSpec, description="where to run (not hashed)")
+
+    @model_validator(mode="after")
+    def _consistent(self) -> "Spec":
+        from .spec_checks import check_spec
+        check_spec(self)
+        return self
+
+    def science(self) -> dict[str, Any]:
+        """Everything that determines the results (the spec without ``run``)."""
+        return self.model_dump(mode="json", exclude={"run"})
+
+    def spec_hash(self) -> str:
+        text = json.dumps(self.science(), sort_keys=True, separators=(",", ":"))
+        return hashlib.sha256(text.encode()).hexdigest()
+
+    def to_yaml(self) -> str:
+        return yaml.safe_dump(self.model_dump(mode="json"), sort_keys=False)
+
+
+def format_error(exc: ValidationError, source: str) -> str:
+    """One line: ``source: field.path=value: expected ...`` for the first error."""
+    err = exc.errors()[0]
+    path = ".".join(str(p) for p in err["loc"])
+    msg = err["msg"].removeprefix("Value error, ")
+    if not path:  # a cross-field check: its message names the fields itself
+        return f"{source}: {msg}"
+    if err["type"] == "extra_forbidden":
+        return f"{source}: unknown key {path!r}; see `python -m sweep.spec --markdown`"
+    value = err.get("input")
+    shown = json.dumps(value, default=str) if not isinstance(value, dict) else "{...}"
+    if len(shown) > 60:
+        shown = shown[:57] + "..."
+    more = f" (+{len(exc.errors()) - 1} more)" if len(exc.errors()) > 1 else ""
+    return f"{source}: {path}={shown}: {msg}{more}"
+
+
+def parse_spec(data: Any, source: str = "spec") -> Spec:
+    """Validate a mapping as a :class:`Spec`; a bad field raises a one-line UserError."""
+    if not isinstance(data, dict):
+        raise UserError(f"{source}: top level is {type(data).__name__}, expected a mapping "
+                        "with keys scenario, family, grid, compute, run")
+    try:
+        return Spec.model_validate(data)
+    except ValidationError as exc:
+        raise UserError(format_error(exc, source)) from None
+
+
+def load_spec(path: str | Path) -> Spec:
+    """Read and validate a YAML spec file; file paths in it are taken relative to its folder."""
+    p = Path(path)
+    if not p.is_file():
+        raise UserError(f"spec file {str(p)!r} does not exist, expected a YAML job spec")
+    try:
+        data = yaml.safe_load(p.read_text())
+    except yaml.YAMLError as exc:
+        line = getattr(getattr(exc, "problem_mark", None), "line", -1) + 1
+        raise UserError(f"spec file {str(p)!r}: not valid YAML (line {line}: "
+                        f"{getattr(exc, 'problem', exc)})") from None
+    data = _anchor_paths(data, p.parent)
+    return parse_spec(data, str(p))
+
+
+def _anchor_paths(data: Any, folder: Path) -> Any:
+    fam = data.get("family") if isinstance(data, dict) else None
+    if isinstance(fam, dict) and isinstance(fam.get("paths"), list):
+        fam["paths"] = [str((folder / q).resolve()) if isinstance(q, str) else q
+                        for q in fam["paths"]]
+    return data
+
+
+if __name__ == "__main__":  # pragma: no cover - thin entry point
+    from .spec_doc import markdown_reference
+    if "--markdown" in sys.argv:
+        print(markdown_reference())
+    else:
+        print("usage: python -m sweep.spec --markdown")

@@ -1,0 +1,112 @@
+"""The task function: a pure top-level function from plain data to plain results.
+
+``run_samples(spec_json, indices)`` rebuilds the plan from the spec's JSON (cached per worker
+process, so files are read and problems compiled once), computes every sample and returns one
+dict per sample.  It never raises for a sample: an invalid operator is status ``invalid``, a
+failed solve ``failed``, any other exception ``error`` with its message.  No warm starts are
+used, so a sample's result does not depend on which task or worker computed it.
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+from functools import lru_cache
+from typing import Any
+
+import numpy as np
+
+from workers.games import get_game
+from workers.seesaw import seesaw
+from workers.separability import analyse
+from workers.solvers import SolverOptions
+from workers.validity import check_validity
+
+from .plan import Plan
+from .spec import Spec
+
+NAN = float("nan")
+FIELDS_FLOAT = ("min_eig", "r_random", "r_random_lo", "r_random_hi", "r_generalized",
+                "r_generalized_lo", "r_generalized_hi", "margin", "res_pri", "res_dual", "gap",
+                "solve_time", "game_value", "aux")
+
+
+@lru_cache(maxsize=4)
+def plan_from_json(spec_json: str) -> Plan:
+    return Plan(Spec.model_validate_json(spec_json))
+
+
+def _worker_name() -> str:
+    try:
+        from distributed import get_worker
+        return str(get_worker().name)
+    except (ImportError, ValueError):
+        return f"{socket.gethostname()}:{os.getpid()}"
+
+
+def blank(index: int, point: int, rep: int) -> dict[str, Any]:
+    row: dict[str, Any] = {f: NAN for f in FIELDS_FLOAT}
+    row.update(index=index, point=point, rep=rep, status="ok", verdict="", valid=True,
+               solver_status="", iterations=0, message="", worker=_worker_name(),
+               operator=None, witness=None)
+    return row
+
+
+def _robustness(plan: Plan, W: np.ndarray, row: dict[str, Any]) -> None:
+    comp = plan.spec.compute
+    opts = SolverOptions(solver=comp.solver, eps_abs=comp.eps, eps_rel=comp.eps,
+                         max_iters=comp.max_iters, tol=comp.tol)
+    res = analyse(plan.scenario, W, tuple(comp.robustness), comp.method, opts)
+    row.update(verdict=res.verdict, margin=res.margin, message=res.reason)
+    solves = []
+    for kind, b in res.bounds.items():
+        row[f"r_{kind}"] = NAN if b.value is None else b.value
+        row[f"r_{kind}_lo"], row[f"r_{kind}_hi"] = b.lower, b.upper
+        solves += [b.lower_from] + ([] if b.exact else [b.upper_from])
+    deciding = res.witness_result()
+    row.update(solver_status=deciding.status, iterations=deciding.iterations,
+               res_pri=deciding.res_pri, res_dual=deciding.res_dual, gap=deciding.gap,
+               solve_time=sum(r.solve_time for r in solves))
+    if any(not r.ok for r in solves):
+        row["status"] = "failed"
+    if comp.store_witnesses and deciding.witness is not None:
+        row["witness"] = deciding.witness
+
+
+def _game(plan: Plan, index: int, W: np.ndarray, row: dict[str, Any]) -> None:
+    g = plan.spec.compute.game
+    dims = [(p.d_in, p.d_out) for p in plan.scenario.parties]
+    seed = np.random.SeedSequence(plan.spec.compute.seed, spawn_key=(index, 1))
+    row["game_value"] = seesaw(W, dims, get_game(g.name), n_starts=g.starts, seed=seed,
+                               max_iter=g.max_iter).value
+
+
+def compute_sample(plan: Plan, index: int) -> dict[str, Any]:
+    """All requested quantities of one sample (never raises)."""
+    point, rep = plan.locate(index)
+    row = blank(index, point, rep)
+    comp = plan.spec.compute
+    try:
+        W, row["aux"] = plan.operator(index)
+        if comp.store_operators:
+            row["operator"] = W
+        rep_v = check_validity(plan.scenario, W, tol=1e-7)
+        row["min_eig"] = rep_v.min_eigenvalue
+        if comp.validity and not rep_v.valid:
+            row.update(status="invalid", valid=False, message="; ".join(rep_v.problems()))
+            return row
+        if comp.robustness:
+            _robustness(plan, W, row)
+        if comp.game is not None:
+            _game(plan, index, W, row)
+    except Exception as exc:  # recorded as the sample's status, never aborts the sweep
+        row.update(status="error", message=f"{type(exc).__name__}: {exc}"[:300])
+    return row
+
+
+def run_samples(spec_json: str, indices: list[int]) -> list[dict[str, Any]]:
+    """Compute the samples ``indices`` of the spec given as JSON (the dask task)."""
+    plan = plan_from_json(spec_json)
+    return [compute_sample(plan, int(i)) for i in indices]
+
+
