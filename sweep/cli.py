@@ -13,7 +13,8 @@ import sys
 
 from .errors import UserError
 
-COMMAND_MODULES = ("sweep.cmd_check", "sweep.cmd_games")
+COMMAND_MODULES = ("sweep.cmd_check", "sweep.cmd_games", "sweep.cmd_run", "sweep.cmd_summary",
+                   "sweep.cmd_plot", "sweep.cmd_demo")
 
 
 def build_parser() -> argparse.ArgumentParser:

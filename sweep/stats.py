@@ -1,0 +1,129 @@
+"""Summary statistics of a results file, per grid point.
+
+* fraction nonseparable among the *decided* samples (separable + nonseparable), with a 95 %
+  confidence interval from ``scipy.stats.binomtest(k, n).proportion_ci`` (Wilson by default,
+  ``exact`` = Clopper-Pearson);
+* quantiles (5, 25, 50, 75, 95 %) of each stored robustness over samples with a value;
+* counts of undecided, invalid, failed (a solve failed) and error samples;
+* solve-time mean, median and maximum;
+* with a game quantity: the game's causal bound (LP) and the fraction of samples whose
+  see-saw value exceeds it by more than 1e-6 (a certified causal-inequality violation, since
+  see-saw values are achievable).
+"""
+
+from __future__ import annotations
+
+import json
+from functools import lru_cache
+from typing import Any
+
+import numpy as np
+from scipy.stats import binomtest
+
+from workers.causal_bound import causal_bound
+from workers.games import get_game
+
+QUANTILES = (0.05, 0.25, 0.5, 0.75, 0.95)
+VIOLATION_TOL = 1e-6
+
+
+def proportion(k: int, n: int, method: str = "wilson") -> dict[str, float]:
+    """Fraction k/n with its 95 % CI (nan when n = 0)."""
+    if n == 0:
+        return {"fraction": float("nan"), "ci_low": float("nan"), "ci_high": float("nan")}
+    ci = binomtest(int(k), int(n)).proportion_ci(confidence_level=0.95, method=method)
+    return {"fraction": k / n, "ci_low": float(ci.low), "ci_high": float(ci.high)}
+
+
+def _quantiles(x: np.ndarray) -> dict[str, float] | None:
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return None
+    out = {f"q{int(q * 100):02d}": float(np.quantile(x, q)) for q in QUANTILES}
+    out["mean"] = float(x.mean())
+    return out
+
+
+@lru_cache(maxsize=8)
+def game_bound(name: str) -> float:
+    return float(causal_bound(get_game(name)).value)
+
+
+def _str(col: np.ndarray) -> np.ndarray:
+    return np.array([v.decode() if isinstance(v, bytes) else str(v) for v in col])
+
+
+def point_stats(rows: np.ndarray, game: str | None, method: str) -> dict[str, Any]:
+    """Statistics of the sample rows of one grid point."""
+    verdict, status = _str(rows["verdict"]), _str(rows["status"])
+    sep, non = int(np.sum(verdict == "separable")), int(np.sum(verdict == "nonseparable"))
+    out: dict[str, Any] = {
+        "n": int(len(rows)), "separable": sep, "nonseparable": non,
+        "undecided": int(np.sum(verdict == "undecided")),
+        "invalid": int(np.sum(status == "invalid")), "failed": int(np.sum(status == "failed")),
+        "error": int(np.sum(status == "error")),
+        "nonseparable_fraction": proportion(non, sep + non, method),
+    }
+    for kind in ("random", "generalized"):
+        q = _quantiles(rows[f"r_{kind}"])
+        if q is not None:
+            out[f"r_{kind}"] = q
+    t = rows["solve_time"][np.isfinite(rows["solve_time"])]
+    if t.size:
+        out["solve_time"] = {"mean": float(t.mean()), "median": float(np.median(t)),
+                             "max": float(t.max())}
+    if game is not None:
+        g = rows["game_value"][np.isfinite(rows["game_value"])]
+        bound = game_bound(game)
+        out["game"] = {"name": game, "causal_bound": bound, "n": int(g.size),
+                       "max_value": float(g.max()) if g.size else float("nan"),
+                       "violating": proportion(int(np.sum(g > bound + VIOLATION_TOL)),
+                                               int(g.size), method)}
+    return out
+
+
+def summarise(attrs: dict[str, Any], samples: np.ndarray, points: np.ndarray,
+              method: str = "wilson") -> dict[str, Any]:
+    """Per-grid-point statistics of a results file (see module doc)."""
+    spec = json.loads(attrs["spec_json"])
+    game = (spec["compute"].get("game") or {}).get("name")
+    axes = json.loads(attrs["axes"])
+    per_point = []
+    for p in range(len(points)):
+        rows = samples[samples["point"] == p]
+        entry = {"point": p, "coords": dict(zip(axes, map(float, points[p])))}
+        entry.update(point_stats(rows, game, method))
+        per_point.append(entry)
+    return {"spec_hash": attrs["spec_hash"], "n_samples": int(attrs["n_samples"]),
+            "stored": int(len(samples)), "complete": len(samples) == int(attrs["n_samples"]),
+            "family": spec["family"], "axes": axes, "ci_method": method,
+            "runs": json.loads(attrs["runs"]), "points": per_point}
+
+
+def _fmt(x: float) -> str:
+    return "nan" if not np.isfinite(x) else f"{x:.4g}"
+
+
+def format_table(summary: dict[str, Any]) -> str:
+    """A plain-text table, one line per grid point."""
+    fam = summary["family"]
+    head = (f"family: {fam.get('kind')} {fam.get('name') or fam.get('measure') or ''}  "
+            f"samples stored: {summary['stored']}/{summary['n_samples']}"
+            f"{'' if summary['complete'] else '  (incomplete: rerun to resume)'}")
+    cols = summary["axes"] + ["n", "nonsep", "frac", "95% CI", "undec", "fail", "R_r median",
+                              "t_solve"]
+    has_game = any("game" in p for p in summary["points"])
+    cols += ["game viol"] if has_game else []
+    lines = [head, "  ".join(f"{c:>10}" for c in cols)]
+    for p in summary["points"]:
+        fr = p["nonseparable_fraction"]
+        vals = [_fmt(p["coords"][a]) for a in summary["axes"]] + [
+            str(p["n"]), str(p["nonseparable"]), _fmt(fr["fraction"]),
+            f"[{_fmt(fr['ci_low'])},{_fmt(fr['ci_high'])}]", str(p["undecided"]),
+            str(p["failed"] + p["error"] + p["invalid"]),
+            _fmt(p.get("r_random", {}).get("q50", float("nan"))),
+            _fmt(p.get("solve_time", {}).get("median", float("nan")))]
+        if has_game:
+            vals.append(_fmt(p["game"]["violating"]["fraction"]))
+        lines.append("  ".join(f"{v:>10}" for v in vals))
+    return "\n".join(lines)
