@@ -246,7 +246,8 @@ def textbook_random_robustness_tripartite(w: np.ndarray, dims: Sequence[int],
 
     ``min r  s.t.  W + r 1° = Σ_{k≠l} W_(k,l)``, each ``W_(k,l) ⪰ 0`` and satisfying
     conditions (i)-(iii) as dense matrix equations; ``r ≥ 0``. Six dense variables of the full
-    size: memory grows fast, so keep the total dimension small.
+    size, and cvxpy compilation dominates: measured on a 2-core machine, 32x32 took ~10 s of
+    setup; three qubit parties (64x64, white noise) took 363 s of setup and 9.1 GB peak RSS.
 
     Parameters
     ----------
