@@ -133,9 +133,11 @@ def _min_eig(coeffs: np.ndarray, dims: tuple[int, ...], scale: int) -> Fraction:
     return min_eigenvalue_lower_bound(re, im, nd * scale)
 
 
-def _relative(a: np.ndarray, b: np.ndarray) -> float:
+def _relative(a: np.ndarray, b: np.ndarray, floor: np.ndarray | None = None) -> float:
+    """||a - b|| / max(||b||, ||floor||) on exact integers (floats only for the ratio)."""
     num = sum(float(v) ** 2 for v in (a - b).ravel())
-    den = sum(float(v) ** 2 for v in b.ravel())
+    den = max(sum(float(v) ** 2 for v in b.ravel()),
+              0.0 if floor is None else sum(float(v) ** 2 for v in floor.ravel()))
     return float(np.sqrt(num / den)) if den > 0 else float(np.sqrt(num))
 
 
@@ -219,7 +221,8 @@ def verify_decomposition(scenario: Scenario, W: np.ndarray, cert: Certificate,
         return VerificationReport(False, "undecided", float("nan"), f"W is not in the "
                                   f"structure's span (relative residual {outside:.2e})")
     x_hat, L = project_affine(x * (scale // den), t, codes, systems)
-    resid = _relative(x * (scale // den) * L, x_hat)
+    x_scaled = x * (scale // den) * L
+    resid = _relative(x_scaled, x_hat, floor=wc[0] * (scale // wden) * L)
     if resid > MAX_RESIDUAL:
         return VerificationReport(False, "undecided", float("nan"), f"leaves violate the causal"
                                   f" constraints (relative residual {resid:.2e})")
