@@ -27,7 +27,8 @@ from .basis import pattern_codes, to_coefficients
 from .cone_vectors import basis_to_cone, cone_size
 from .masks import valid_mask
 from .scenario import Scenario
-from .structures import CausalStructure, build_structure, pattern_systems
+from .structures import (CausalStructure, build_structure, leaf_classes, merged_structure,
+                         pattern_systems, sparse_null_basis)
 from .validity import white_noise
 
 KINDS = ("random", "generalized")
@@ -46,11 +47,14 @@ class ConicProblem:
     cone_dims
         Side of each Hermitian PSD block (leaves first, then Omega for ``generalized``).
     leaf_particular
-        (n_leaves, D^2): the particular-solution weight of each leaf per basis element.
+        (n_blocks, D^2): the particular-solution weight of each leaf block per basis element.
     spanned
         Boolean mask over basis elements inside the span of the causal structure.
     omega_index
         Basis-element indices of the Omega variables (``generalized`` only).
+    leaf_class
+        PSD block of each leaf of ``structure``: leaves with identical conditions share one
+        block (see :func:`workers.structures.leaf_classes`); empty means one block per leaf.
     """
 
     scenario: Scenario
@@ -65,10 +69,21 @@ class ConicProblem:
     spanned: np.ndarray
     omega_index: np.ndarray
     n_z: int
+    leaf_class: tuple[int, ...] = ()
 
     @property
     def n_leaves(self) -> int:
+        """Leaves of the causal structure (as reported in results)."""
         return self.structure.n_leaves
+
+    @property
+    def n_blocks(self) -> int:
+        """Leaf PSD blocks actually in the conic problem (after merging equal leaves)."""
+        return max(self.leaf_class) + 1 if self.leaf_class else self.structure.n_leaves
+
+    def classes(self) -> tuple[int, ...]:
+        """Block index of every leaf."""
+        return self.leaf_class or tuple(range(self.structure.n_leaves))
 
     def b(self, w: np.ndarray) -> np.ndarray:
         return self.b_map @ w
@@ -83,15 +98,22 @@ class ConicProblem:
         return out
 
 
-def _null_parametrisation(codes: np.ndarray, systems: dict) -> tuple[list, int]:
-    """Assign z indices: per basis element, (element indices, first z index, null matrix)."""
+def _null_parametrisation(codes: np.ndarray, systems: dict, sparse: bool = True
+                          ) -> tuple[list, int]:
+    """Assign z indices: per basis element, (element indices, first z index, null matrix).
+
+    Patterns outside the span (target coefficient forced to 0) keep their null space too: the
+    leaves may still carry opposite coefficients there (e.g. W_(k,l) = -W_(k,m) on a pattern
+    that condition (i) forbids only for the sum W_(k)).
+    """
     blocks, n_z = [], 0
     for p, sysm in systems.items():
         q = sysm.null.shape[1]
-        if q == 0 or not sysm.spanned:
+        if q == 0:
             continue
         idx = np.nonzero(codes == p)[0]
-        blocks.append((idx, n_z, sysm.null))
+        null = sparse_null_basis(sysm.null) if sparse else sysm.null
+        blocks.append((idx, n_z, null))
         n_z += len(idx) * q
     return blocks, n_z
 
@@ -123,16 +145,25 @@ def _leaf_z_maps(blocks: list, n_leaves: int, D2: int, n_z: int) -> list[sp.csc_
 
 
 def compile_problem(
-    scenario: Scenario, method: str, kind: str, fmt: str = "scs_complex"
+    scenario: Scenario, method: str, kind: str, fmt: str = "scs_complex",
+    merge_leaves: bool = True, sparse_null: bool = True,
 ) -> ConicProblem:
-    """Build the conic form of the ``kind`` robustness for the structure ``method``."""
+    """Build the conic form of the ``kind`` robustness for the structure ``method``.
+
+    ``merge_leaves`` replaces leaves with identical conditions by one block and
+    ``sparse_null`` uses an echelon (sparse) null-space basis instead of the orthonormal one;
+    both leave the optimum unchanged and only change the cost.
+    """
     if kind not in KINDS:
         raise ValueError(f"kind={kind!r}, expected one of {list(KINDS)}")
-    structure = build_structure(scenario, method)
+    full = build_structure(scenario, method)
     dims = scenario.subsystem_dims
     D = scenario.dim
     codes = pattern_codes(dims)
-    systems = pattern_systems(structure, np.unique(codes))
+    patterns = np.unique(codes)
+    classes = leaf_classes(full, patterns) if merge_leaves else tuple(range(full.n_leaves))
+    structure = merged_structure(full, classes)
+    systems = pattern_systems(structure, patterns)
     m = structure.n_leaves
     P = np.zeros((m, D * D))
     spanned = np.zeros(D * D, dtype=bool)
@@ -140,7 +171,7 @@ def compile_problem(
         sel = codes == p
         P[:, sel] = sysm.particular[:, None]
         spanned[sel] = sysm.spanned
-    blocks, n_z = _null_parametrisation(codes, systems)
+    blocks, n_z = _null_parametrisation(codes, systems, sparse_null)
     zmaps = _leaf_z_maps(blocks, m, D * D, n_z)
     V = basis_to_cone(dims, fmt)
     if kind == "random":
@@ -166,6 +197,6 @@ def compile_problem(
     b_map = sp.vstack(b_blocks).tocsr()
     c = np.concatenate([c_extra, np.zeros(n_z)])
     return ConicProblem(
-        scenario, structure, kind, fmt, A, c, b_map, tuple(cone_dims), P, spanned,
-        omega_index, n_z,
+        scenario, full, kind, fmt, A, c, b_map, tuple(cone_dims), P, spanned,
+        omega_index, n_z, classes,
     )

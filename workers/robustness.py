@@ -137,12 +137,13 @@ class RobustnessProblem:
         V = basis_to_cone(self.scenario.subsystem_dims, prob.fmt)
         slices = prob.block_slices()
         s = np.zeros(prob.leaf_particular.shape[1])
-        for j in range(prob.n_leaves):
+        for j in range(prob.n_blocks):
             s += prob.leaf_particular[j] * (V.T @ y[slices[j]])
         duals = None
         if keep:
-            duals = tuple(cone_to_matrix(y[sl], n, prob.fmt)
-                          for sl, n in zip(slices, prob.cone_dims))
+            mats = [cone_to_matrix(y[sl], n, prob.fmt) for sl, n in zip(slices, prob.cone_dims)]
+            # every leaf of a merged block has that block's dual (same conditions, same cone)
+            duals = tuple([mats[c] for c in prob.classes()] + mats[prob.n_blocks:])
         return s, duals
 
     def _primal_blocks(self, s: np.ndarray):
@@ -153,8 +154,11 @@ class RobustnessProblem:
             mats = [m / 2 for m in mats]
         # cone_to_matrix returns the dual-pairing matrix; for a primal slack of the complex
         # format this is exactly the matrix itself
-        leaves = tuple(mats[: prob.n_leaves])
-        omega = mats[prob.n_leaves] if self.kind == "generalized" else None
+        classes = prob.classes()
+        sizes = np.bincount(classes)
+        # a merged block is split equally among its leaves (each part PSD, same conditions)
+        leaves = tuple(mats[c] / sizes[c] for c in classes)
+        omega = mats[prob.n_blocks] if self.kind == "generalized" else None
         return leaves, omega
 
 

@@ -181,3 +181,55 @@ def pattern_systems(structure: CausalStructure, patterns: Sequence[int]) -> dict
             part = np.zeros(m)
         out[int(p)] = PatternSystem(part, null, spanned, C, h)
     return out
+
+
+def active_groups(structure: CausalStructure, patterns: Sequence[int]) -> tuple[Group, ...]:
+    """The groups that forbid at least one of ``patterns`` (the others constrain nothing)."""
+    return tuple(g for g in structure.groups if any(g.forbids(int(p)) for p in patterns))
+
+
+def leaf_classes(structure: CausalStructure, patterns: Sequence[int]) -> tuple[int, ...]:
+    """Class index of every leaf: leaves with identical membership in every active group.
+
+    Leaves of one class obey the same conditions on every pattern, so their sum can replace
+    them (a sum of PSD operators is PSD, and a PSD operator splits into equal PSD parts):
+    merging them leaves the set of decomposable operators unchanged.  With trivial outputs
+    (d_O = 1) most conditions are empty and many leaves merge.
+    """
+    groups = active_groups(structure, patterns)
+    signature = [tuple(j in g.leaves for g in groups) for j in range(structure.n_leaves)]
+    first: dict[tuple[bool, ...], int] = {}
+    return tuple(first.setdefault(sig, len(first)) for sig in signature)
+
+
+def merged_structure(structure: CausalStructure, classes: Sequence[int]) -> CausalStructure:
+    """The structure with one leaf per class (labelled by its first member's ordering)."""
+    n_cls = max(classes) + 1
+    reps = [structure.leaves[classes.index(c)] for c in range(n_cls)]
+    groups = tuple(Group(tuple(sorted({classes[j] for j in g.leaves})), g.x_bits, g.y_bits)
+                   for g in structure.groups)
+    return CausalStructure(structure.method, tuple(reps), groups)
+
+
+def sparse_null_basis(null: np.ndarray, tol: float = 1e-10) -> np.ndarray:
+    """A sparse basis (columns) of the span of ``null``: the reduced row echelon form of null^T.
+
+    Each basis vector is 1 on its own pivot leaf and 0 on the other pivots, so it touches few
+    leaves; the orthonormal SVD basis touches all of them and makes the conic matrix dense.
+    """
+    R = np.array(null.T, dtype=float)
+    q, m = R.shape
+    row = 0
+    for col in range(m):
+        if row == q:
+            break
+        piv = row + int(np.argmax(np.abs(R[row:, col])))
+        if abs(R[piv, col]) <= tol:
+            continue
+        R[[row, piv]] = R[[piv, row]]
+        R[row] /= R[row, col]
+        others = np.arange(q) != row
+        R[others] -= np.outer(R[others, col], R[row])
+        row += 1
+    R[np.abs(R) <= tol] = 0.0
+    return R[:row].T.copy()
