@@ -21,6 +21,8 @@ from .solvers import RawSolution, SolverOptions, get_backend
 from .validity import check_shape
 
 FAILED = ("failed", "error", "infeasible", "unbounded")
+# statuses after which the other back-end is tried (when ``SolverOptions.fallback``)
+RETRY = FAILED + ("iteration_limit", "time_limit")
 
 
 @dataclass(frozen=True)
@@ -104,10 +106,12 @@ class RobustnessProblem:
         warm = warm_start.raw if warm_start is not None and self.backend.warm_startable else None
         raw = self.backend.solve(self.problem.b(w), warm)
         result = self._result(raw, w, keep_certificate)
-        if result.status in FAILED and self.options.fallback:
+        if result.status in RETRY and self.options.fallback:
             other = "CLARABEL" if self.options.solver.upper() == "SCS" else "SCS"
-            alt = get_problem(self.scenario, self.kind, self.method,
-                              replace(self.options, solver=other, fallback=False))
+            # the other back-end keeps the tolerances but its own default iteration cap
+            alt_opts = replace(self.options, solver=other, fallback=False,
+                               max_iters=SolverOptions().max_iters)
+            alt = get_problem(self.scenario, self.kind, self.method, alt_opts)
             second = alt.solve(W, keep_certificate=keep_certificate)
             return replace(second, fallback_from=f"{result.solver}:{result.status}")
         return result

@@ -135,3 +135,16 @@ def test_invalid_operator_refused():
     bad = p.matrix + 0.1 * np.kron(np.kron(np.eye(2), np.diag([1, -1])), np.eye(4))
     with pytest.raises(ValueError, match="not in the valid subspace"):
         get_problem(p.scenario, "random", "exact", OPTS).solve(bad)
+
+
+def test_solver_failure_is_a_status_with_fallback():
+    """A solve cut off by its iteration cap is a status, not an exception; with fallback on,
+    the other back-end is tried and the result says so."""
+    p = ocb_process()
+    capped = SolverOptions(solver="CLARABEL", max_iters=1, fallback=False)
+    r = RobustnessProblem(p.scenario, "generalized", "exact", capped).solve(p.matrix)
+    assert r.status == "iteration_limit" and r.fallback_from == ""
+    again = RobustnessProblem(p.scenario, "generalized", "exact",
+                              SolverOptions(solver="CLARABEL", max_iters=1)).solve(p.matrix)
+    assert again.fallback_from == "CLARABEL:iteration_limit" and again.solver == "SCS"
+    assert again.value == pytest.approx(3 - 2 * SQ2, abs=1e-6)
