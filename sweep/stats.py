@@ -65,9 +65,10 @@ def point_stats(rows: np.ndarray, game: str | None, method: str) -> dict[str, An
         "nonseparable_fraction": proportion(non, sep + non, method),
     }
     for kind in ("random", "generalized"):
-        q = _quantiles(rows[f"r_{kind}"])
-        if q is not None:
-            out[f"r_{kind}"] = q
+        for suffix in ("", "_lo", "_hi"):  # _lo/_hi: bounds (N >= 4 has no exact value)
+            q = _quantiles(rows[f"r_{kind}{suffix}"])
+            if q is not None:
+                out[f"r_{kind}{suffix}"] = q
     t = rows["solve_time"][np.isfinite(rows["solve_time"])]
     if t.size:
         out["solve_time"] = {"mean": float(t.mean()), "median": float(np.median(t)),
@@ -110,10 +111,11 @@ def format_table(summary: dict[str, Any]) -> str:
     head = (f"family: {fam.get('kind')} {fam.get('name') or fam.get('measure') or ''}  "
             f"samples stored: {summary['stored']}/{summary['n_samples']}"
             f"{'' if summary['complete'] else '  (incomplete: rerun to resume)'}")
-    cols = summary["axes"] + ["n", "nonsep", "frac", "95% CI", "undec", "fail", "R_r median",
+    cols = summary["axes"] + ["n", "nonsep", "frac", "95% CI", "undec", "fail", "R_r med",
                               "t_solve"]
     has_game = any("game" in p for p in summary["points"])
     cols += ["game viol"] if has_game else []
+    head += "\n(R_r med: median random robustness, or of its upper bound where only bounds exist)"
     lines = [head, "  ".join(f"{c:>10}" for c in cols)]
     for p in summary["points"]:
         fr = p["nonseparable_fraction"]
@@ -121,7 +123,7 @@ def format_table(summary: dict[str, Any]) -> str:
             str(p["n"]), str(p["nonseparable"]), _fmt(fr["fraction"]),
             f"[{_fmt(fr['ci_low'])},{_fmt(fr['ci_high'])}]", str(p["undecided"]),
             str(p["failed"] + p["error"] + p["invalid"]),
-            _fmt(p.get("r_random", {}).get("q50", float("nan"))),
+            _fmt(p.get("r_random", p.get("r_random_hi", {})).get("q50", float("nan"))),
             _fmt(p.get("solve_time", {}).get("median", float("nan")))]
         if has_game:
             vals.append(_fmt(p["game"]["violating"]["fraction"]))
