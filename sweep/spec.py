@@ -30,7 +30,7 @@ class Strict(BaseModel):
 class ScenarioSpec(Strict):
     """Parties and their dimensions, in subsystem order P, A1_I, A1_O, ..., F."""
 
-    dims: list[Annotated[int, Field(ge=1)]] = Field(
+    dims: list[int] = Field(
         min_length=2, description="input then output dimension per party: [dI1, dO1, dI2, ...]")
     d_past: int = Field(1, ge=1, description="dimension of the global past P (1 = absent)")
     d_future: int = Field(1, ge=1, description="dimension of the global future F (1 = absent)")
@@ -38,6 +38,8 @@ class ScenarioSpec(Strict):
 
     @model_validator(mode="after")
     def _even(self) -> "ScenarioSpec":
+        if any(d < 1 for d in self.dims):
+            raise ValueError(f"dims={self.dims} has an entry < 1, expected dimensions >= 1")
         if len(self.dims) % 2:
             raise ValueError(f"dims={self.dims} has {len(self.dims)} entries, expected an even "
                              "number (input then output dimension per party)")
