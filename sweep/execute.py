@@ -42,8 +42,8 @@ class SweepOutcome:
 class Progress:
     """A one-line text progress bar with rate and ETA (stderr)."""
 
-    def __init__(self, total: int, enabled: bool, stream: TextIO = sys.stderr) -> None:
-        self.total, self.enabled, self.stream = total, enabled, stream
+    def __init__(self, total: int, enabled: bool, stream: TextIO | None = None) -> None:
+        self.total, self.enabled, self.stream = total, enabled, stream or sys.stderr
         self.done, self.t0, self.last = 0, time.monotonic(), 0.0
 
     def update(self, n: int) -> None:
