@@ -92,6 +92,9 @@ class ResultFile:
         if self.path.exists():
             try:
                 f = h5py.File(self.path, "r+")
+            except BlockingIOError:
+                raise UserError(f"output {str(self.path)!r} is open in another process (a "
+                                "sweep still running?); expected it to be free") from None
             except OSError as exc:
                 raise UserError(f"output {str(self.path)!r} exists but is not a writable HDF5 "
                                 f"file ({exc}); expected an orderless results file") from None

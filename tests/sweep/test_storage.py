@@ -3,16 +3,13 @@ and a driver killed with SIGKILL mid-sweep (LIBRARY-FACTS.md: an unflushed HDF5 
 mid-write was unreadable; flushed after each chunk it was readable)."""
 
 import json
-import os
 import signal
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import h5py
 import numpy as np
-import pytest
 
 from sweep.cli import main
 from sweep.execute import run_sweep
@@ -81,18 +78,36 @@ def _spec_for_kill(write_spec):
     return write_spec(data)
 
 
+def _start_and_wait(spec, out, n_done):
+    proc = subprocess.Popen([sys.executable, "-m", "sweep.cli", "run", spec, "-o", out],
+                            cwd=REPO, stderr=subprocess.PIPE, stdout=subprocess.DEVNULL)
+    seen = b""
+    while b"/150" not in seen or int(seen.rsplit(b"/150", 1)[0].rsplit(b" ", 1)[-1]) < n_done:
+        chunk = proc.stderr.read1(256)
+        assert chunk, "driver ended before it could be stopped"
+        seen += chunk
+    return proc
+
+
+def test_ctrl_c_stops_cleanly_and_resumes(write_spec, tmp_path):
+    """SIGINT (Ctrl-C): exit 130, the run is recorded as interrupted, the rerun completes."""
+    spec, out = _spec_for_kill(write_spec), str(tmp_path / "c.h5")
+    proc = _start_and_wait(spec, out, 10)
+    proc.send_signal(signal.SIGINT)
+    assert proc.wait(timeout=60) == 130
+    with h5py.File(out, "r") as f:
+        assert json.loads(f.attrs["runs"])[0]["state"] == "interrupted"
+    assert main(["run", spec, "-o", out, "--no-progress"]) == 0
+    with h5py.File(out, "r") as f:
+        assert sorted(f["samples"]["index"]) == list(range(150))
+
+
 def test_driver_killed_mid_sweep_then_resumed(write_spec, tmp_path):
     """SIGKILL the driver after some chunks were written; the file opens, the rerun computes
     only the missing samples (the rows of the first run keep their worker pid), and every
     sample is present exactly once."""
     spec, out = _spec_for_kill(write_spec), str(tmp_path / "k.h5")
-    proc = subprocess.Popen([sys.executable, "-m", "sweep.cli", "run", spec, "-o", out],
-                            cwd=REPO, stderr=subprocess.PIPE, stdout=subprocess.DEVNULL)
-    seen = b""
-    while b"/150" not in seen or int(seen.rsplit(b"/150", 1)[0].rsplit(b" ", 1)[-1]) < 20:
-        chunk = proc.stderr.read1(256)
-        assert chunk, "driver ended before it could be killed"
-        seen += chunk
+    proc = _start_and_wait(spec, out, 20)
     proc.send_signal(signal.SIGKILL)
     proc.wait()
     with h5py.File(out, "r") as f:
