@@ -64,7 +64,8 @@ class Progress:
             self.stream.write("\n")
 
 
-def _jobqueue_cluster(run: RunSpec):
+def jobqueue_cluster(run: RunSpec, start: bool = True):
+    """The dask-jobqueue cluster of ``run.jobqueue`` (jobs submitted only if ``start``)."""
     try:
         import dask_jobqueue
     except ImportError:
@@ -78,7 +79,8 @@ def _jobqueue_cluster(run: RunSpec):
         queue=jq.queue, account=jq.account, job_extra_directives=list(jq.extra_directives),
         job_script_prologue=[*(f"export {k}={v}" for k, v in ONE_THREAD.items()),
                              *jq.prologue])
-    cluster.scale(jobs=jq.jobs)
+    if start:
+        cluster.scale(jobs=jq.jobs)
     return cluster
 
 
@@ -98,7 +100,7 @@ def open_client(run: RunSpec) -> Iterator:
         return
     with dask.config.set({"distributed.nanny.pre-spawn-environ": ONE_THREAD}):
         if run.cluster == "jobqueue":
-            cluster = _jobqueue_cluster(run)
+            cluster = jobqueue_cluster(run)
         else:
             n = run.workers or os.cpu_count() or 1
             cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,

@@ -1,0 +1,34 @@
+"""Execution helpers: the batch-queue job script and the progress bar."""
+
+import io
+
+import pytest
+
+from sweep.execute import Progress, jobqueue_cluster
+from sweep.spec_run import RunSpec
+
+
+def test_slurm_job_script_carries_the_spec(tmp_path):
+    """dask-jobqueue's SLURMCluster.job_script() (its documented API) holds cores, memory,
+    walltime, the extra directives, the prologue and one BLAS thread; nothing is submitted."""
+    pytest.importorskip("dask_jobqueue")
+    run = RunSpec.model_validate({"cluster": "jobqueue", "jobqueue": {
+        "system": "slurm", "cores": 4, "processes": 2, "memory": "8GB", "walltime": "00:30:00",
+        "extra_directives": ["--constraint=cpu"], "prologue": ["module load python"]}})
+    cluster = jobqueue_cluster(run, start=False)
+    try:
+        script = cluster.job_script()
+    finally:
+        cluster.close()
+    for text in ("#SBATCH --cpus-per-task=4", "00:30:00", "#SBATCH --constraint=cpu",
+                 "module load python", "export MKL_NUM_THREADS=1"):
+        assert text in script, text
+
+
+def test_progress_reports_count_rate_and_eta():
+    buf = io.StringIO()
+    bar = Progress(10, True, buf)
+    bar.update(10)
+    bar.close()
+    assert "10/10" in buf.getvalue() and "samples/s" in buf.getvalue()
+    assert "ETA 0 s" in buf.getvalue()
