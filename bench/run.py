@@ -1,0 +1,239 @@
+"""Throughput benchmarks of the compiled robustness SDPs against the textbook formulation.
+
+Run from the repository root::
+
+    python -m bench            # default targets (a few minutes on 2 cores)
+    python -m bench --quick    # fewer samples
+    python -m bench --only bipartite-random tripartite-qubits
+
+Each target runs in its own spawned process (so its peak resident memory is its own) with one
+BLAS/MKL thread; the fast path and the textbook baseline of one target run side by side in
+that process.  Printed per target: instances, median seconds per sample (fast, baseline),
+their ratio, the largest difference of the answers, and the peak memory of the process.
+Times are wall-clock on a shared machine: read them as ratios, not absolutes.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import time
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+THREAD_VARS = ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS")
+
+
+@dataclass(frozen=True)
+class Row:
+    """One line of the benchmark table."""
+
+    target: str
+    instances: int
+    fast_median: float
+    base_median: float
+    max_diff: float
+    peak_mib: float
+    note: str = ""
+
+    @property
+    def ratio(self) -> float:
+        return self.base_median / self.fast_median if self.fast_median > 0 else float("nan")
+
+
+def random_valid(scenario, rng: np.random.Generator, u: float) -> np.ndarray:
+    """``1° + u t_max H``: H a Gaussian Hermitian projected onto the traceless valid subspace,
+    t_max the largest step keeping the operator PSD (u in (0, 1])."""
+    from workers.validity import project_valid, white_noise
+
+    D = scenario.dim
+    G = rng.standard_normal((D, D)) + 1j * rng.standard_normal((D, D))
+    H = project_valid(scenario, (G + G.conj().T) / 2)
+    H = H - np.trace(H).real / D * np.eye(D)
+    lam = np.linalg.eigvalsh(H)[0]
+    return white_noise(scenario) + u * H / (scenario.d_in_total * abs(lam))
+
+
+def _timed(fn: Callable[[], float]) -> tuple[float, float]:
+    t0 = time.perf_counter()
+    value = fn()
+    return time.perf_counter() - t0, value
+
+
+def _compare(name: str, scenario, kind: str, method: str, n: int, eps: float,
+             baseline: Callable | None, u: float = 0.9, seed: int = 4) -> Row:
+    """Fast path (compiled once, re-solved) against ``baseline(W) -> value`` per sample."""
+    from workers.robustness import get_problem
+    from workers.solvers import SolverOptions
+
+    rng = np.random.default_rng(seed)
+    Ws = [random_valid(scenario, rng, u) for _ in range(n)]
+    opts = SolverOptions(eps_abs=eps, eps_rel=eps)
+    t_setup, prob = _timed(lambda: get_problem(scenario, kind, method, opts))
+    fast = [_timed(lambda W=W: prob.solve(W).value) for W in Ws]
+    base = [_timed(lambda W=W: baseline(W)) for W in Ws] if baseline else []
+    diff = max((abs(f[1] - b[1]) for f, b in zip(fast, base)), default=float("nan"))
+    note = f"setup {t_setup:.2f} s, eps {eps:g}, {method}"
+    return Row(name, n, float(np.median([f[0] for f in fast])),
+               float(np.median([b[0] for b in base])) if base else float("nan"), diff,
+               _peak_mib(), note)
+
+
+def _peak_mib() -> float:
+    import resource
+
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
+def bipartite(kind: str, n: int) -> Row:
+    from bench import textbook
+    from workers.scenario import Scenario
+
+    s = Scenario.from_dims([2, 2, 2, 2])
+    fn = (textbook.textbook_random_robustness if kind == "random"
+          else textbook.textbook_generalized_robustness)
+    return _compare(f"bipartite-{kind}", s, kind, "exact", n, 1e-8,
+                    lambda W: fn(W, (2, 2, 2, 2), "SCS", 1e-8).value)
+
+
+def tripartite_small(n: int) -> Row:
+    """Tripartite with the last two outputs trivial (16x16): small enough for the baseline."""
+    from bench import textbook
+    from workers.scenario import Scenario
+
+    dims = (2, 2, 2, 1, 2, 1)
+    s = Scenario.from_dims(dims)
+    return _compare("tripartite-2,2,2,1,2,1", s, "random", "exact", n, 1e-8,
+                    lambda W: textbook.textbook_random_robustness_tripartite(
+                        W, dims, "SCS", 1e-8).value)
+
+
+def tripartite_qubits(n: int, eps: float) -> Row:
+    from workers.scenario import Scenario
+
+    row = _compare(f"tripartite-qubits eps={eps:g}", Scenario.from_dims([2] * 6), "random",
+                   "exact", n, eps, None)
+    return Row(row.target, row.instances, row.fast_median, row.base_median, row.max_diff,
+               row.peak_mib, row.note + "; baseline not run (measured 363 s setup, 9.1 GB)")
+
+
+def four_party(dims: tuple[int, ...], n: int) -> Row:
+    """Necessary and sufficient bounds per sample (both solves counted in the time)."""
+    from workers.robustness import get_problem
+    from workers.scenario import Scenario
+    from workers.solvers import SolverOptions
+
+    s = Scenario.from_dims(list(dims))
+    rng = np.random.default_rng(5)
+    Ws = [random_valid(s, rng, 0.9) for _ in range(n)]
+    probs = [get_problem(s, "random", m, SolverOptions()) for m in ("necessary", "sufficient")]
+    times, gaps = [], []
+    for W in Ws:
+        t, (lo, up) = _timed(lambda W=W: tuple(p.solve(W).value for p in probs))
+        times.append(t)
+        gaps.append(up - lo)
+    blocks = [p.problem.n_blocks for p in probs]
+    return Row(f"four-party {','.join(map(str, dims))}", n, float(np.median(times)),
+               float("nan"), float(max(gaps)), _peak_mib(),
+               f"necessary+sufficient, blocks {blocks}; max diff = largest sufficient-necessary gap")
+
+
+def four_qubit_estimate() -> Row:
+    """Size of the product-basis conic problem for four qubit parties, without building it."""
+    from workers.basis import pattern_sizes
+    from workers.scenario import Scenario
+    from workers.structures import (build_structure, leaf_classes, merged_structure,
+                                    pattern_systems, sparse_null_basis)
+
+    s = Scenario.from_dims([2] * 8)
+    sizes = pattern_sizes(s.subsystem_dims)
+    st = build_structure(s, "necessary")
+    st = merged_structure(st, leaf_classes(st, list(sizes)))
+    systems = pattern_systems(st, list(sizes))
+    # each z touches its null vector's leaves; each leaf entry is one Pauli string with D
+    # matrix entries, about D/2 + 1 of them in the stored lower triangle
+    nnz = sum(sizes[p] * np.count_nonzero(sparse_null_basis(v.null)) for p, v in systems.items()
+              if v.null.shape[1]) * (s.dim // 2 + 1)
+    return Row("four-party qubits (estimate)", 0, float("nan"), float("nan"), float("nan"),
+               _peak_mib(), f"not solved: A would hold ~{nnz / 1e6:.0f}M nonzeros "
+               f"(~{nnz * 12 / 2**30:.1f} GiB before SCS copies and factorises it)")
+
+
+def white_noise_grid(n: int) -> Row:
+    """OCB p W + (1-p) 1° on a grid: cold starts against warm starts along the grid."""
+    from workers.families import ocb_process, white_noise_mixture
+    from workers.robustness import get_problem
+    from workers.solvers import SolverOptions
+
+    P = ocb_process()
+    prob = get_problem(P.scenario, "random", "exact", SolverOptions())
+    Ws = [white_noise_mixture(P.scenario, P.matrix, p) for p in np.linspace(0.5, 1.0, n)]
+    t_cold, cold = _timed(lambda: [prob.solve(W) for W in Ws])
+    warm, prev = [], None
+    t0 = time.perf_counter()
+    for W in Ws:
+        prev = prob.solve(W, warm_start=prev)
+        warm.append(prev)
+    t_warm = time.perf_counter() - t0
+    diff = max(abs(a.value - b.value) for a, b in zip(cold, warm))
+    wit = max(abs(a.witness_value - b.witness_value) for a, b in zip(cold, warm))
+    return Row("white-noise grid (warm vs cold)", n, t_warm / n, t_cold / n, diff, _peak_mib(),
+               f"baseline = cold starts; max witness-value diff {wit:.1e}")
+
+
+TARGETS: dict[str, Callable[[bool], Row]] = {
+    "bipartite-random": lambda q: bipartite("random", 10 if q else 30),
+    "bipartite-generalized": lambda q: bipartite("generalized", 5 if q else 15),
+    "tripartite-small": lambda q: tripartite_small(3 if q else 6),
+    "tripartite-qubits": lambda q: tripartite_qubits(3 if q else 7, 1e-8),
+    "tripartite-qubits-1e-6": lambda q: tripartite_qubits(3 if q else 7, 1e-6),
+    "four-party-tiny": lambda q: four_party((2, 1) * 4, 3 if q else 10),
+    "four-party-mixed": lambda q: four_party((2, 2, 2, 1, 2, 1, 2, 1), 2 if q else 5),
+    "four-party-qubits": lambda q: four_qubit_estimate(),
+    "white-noise-grid": lambda q: white_noise_grid(50),
+}
+
+
+def _run_one(name: str, quick: bool) -> Row:
+    for var in THREAD_VARS:
+        os.environ[var] = "1"
+    return TARGETS[name](quick)
+
+
+def format_table(rows: list[Row]) -> str:
+    head = (f"| target | instances | fast s/sample | baseline s/sample | ratio | max diff | "
+            f"peak MiB | note |\n|---|---|---|---|---|---|---|---|")
+    lines = [head]
+    for r in rows:
+        lines.append(f"| {r.target} | {r.instances} | {r.fast_median:.4g} | {r.base_median:.4g} "
+                     f"| {r.ratio:.3g} | {r.max_diff:.2e} | {r.peak_mib:.0f} | {r.note} |")
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    import multiprocessing as mp
+
+    ap = argparse.ArgumentParser(prog="python -m bench", description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true", help="fewer samples per target")
+    ap.add_argument("--only", nargs="+", choices=sorted(TARGETS), help="targets to run")
+    args = ap.parse_args(argv)
+    ctx = mp.get_context("spawn")
+    rows = []
+    for name in args.only or list(TARGETS):
+        with ctx.Pool(1) as pool:  # a fresh process per target: its own peak memory
+            rows.append(pool.apply(_run_one, (name, args.quick)))
+        print(format_table(rows[-1:]).splitlines()[-1], flush=True)
+    import cvxpy, scs, clarabel  # noqa: E401 - versions for the record
+
+    print(f"\n{time.strftime('%Y-%m-%d')}  python {sys.version.split()[0]}  numpy "
+          f"{np.__version__}  scs {scs.__version__}  clarabel {clarabel.__version__}  "
+          f"cvxpy {cvxpy.__version__}\n")
+    print(format_table(rows))
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
