@@ -61,26 +61,33 @@ def random_valid_process(scenario: Scenario, rng: np.random.Generator) -> np.nda
     return white_noise(scenario) + rng.uniform() * t_max * H
 
 
+TIGHT_SCS = SolverOptions(eps_abs=1e-10, eps_rel=1e-10)
+
+
 @pytest.mark.slow
 def test_seeded_sweep_is_certified_and_agrees_with_interior_point():
-    """200 bipartite + 50 tripartite qubit samples: >= 99% certified after the second pass,
-    every certificate re-verifies, and no certified verdict contradicts Clarabel's
-    (interior-point) decisive verdict."""
+    """200 bipartite + 50 tripartite qubit samples: >= 99% certified after the second pass
+    and every certificate re-verifies.  Bipartite: second pass and comparison with Clarabel
+    (interior point); no certified verdict may contradict its decisive verdict.  Tripartite:
+    Clarabel needs ~245 s and ~3.8 GB per 64 x 64 solve here (measured once), so the second
+    pass is SCS at eps 1e-10 and there is no interior-point comparison."""
     seeds = np.random.SeedSequence(2024).spawn(250)
     counts = {"certified": 0, "second_pass": 0, "contradictions": 0, "nonseparable": 0}
     for i, seed in enumerate(seeds):
-        sc = Scenario.from_dims([2, 2, 2, 2] if i < 200 else [2] * 6)
+        bipartite = i < 200
+        sc = Scenario.from_dims([2, 2, 2, 2] if bipartite else [2] * 6)
         W = random_valid_process(sc, np.random.default_rng(seed))
-        out = certified_analyse(sc, W)
+        second = SolverOptions(solver="CLARABEL") if bipartite else TIGHT_SCS
+        out = certified_analyse(sc, W, second_pass=second)
         counts["second_pass"] += out.passes == 2
         if not out.certified:
             continue
         counts["certified"] += 1
         counts["nonseparable"] += out.verdict == "nonseparable"
         assert verify_certificate(sc, W, out.certificate).ok
-        ip = analyse(sc, W, ("random",), options=SolverOptions(solver="CLARABEL"))
-        if ip.verdict != "undecided" and ip.verdict != out.verdict:
-            counts["contradictions"] += 1
+        if bipartite:
+            ip = analyse(sc, W, ("random",), options=SolverOptions(solver="CLARABEL"))
+            counts["contradictions"] += ip.verdict not in ("undecided", out.verdict)
     print(counts)
     assert counts["contradictions"] == 0
     assert counts["certified"] >= 0.99 * len(seeds)
