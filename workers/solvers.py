@@ -17,6 +17,8 @@ from .conic import ConicProblem
 
 STATUSES = ("optimal", "optimal_inaccurate", "infeasible", "unbounded", "iteration_limit",
             "time_limit", "failed", "error")
+# SCS catches SIGINT itself and returns status -5; the back-end re-raises it as
+# KeyboardInterrupt so that Ctrl-C stops a sweep instead of being recorded as a status.
 
 
 @dataclass(frozen=True)
@@ -83,7 +85,7 @@ class RawSolution:
 
 _SCS_STATUS = {1: "optimal", 2: "optimal_inaccurate", -1: "unbounded", -6: "unbounded",
                -2: "infeasible", -7: "infeasible", -3: "failed", -4: "failed",
-               -5: "time_limit"}
+               -5: "interrupted"}
 
 
 class ScsBackend:
@@ -120,6 +122,8 @@ class ScsBackend:
             return _error(self.name, exc, time.perf_counter() - t0)
         info = sol["info"]
         status = _SCS_STATUS.get(int(info["status_val"]), "failed")
+        if status == "interrupted":
+            raise KeyboardInterrupt("SCS solve interrupted (SIGINT)")
         if status != "optimal" and info["iter"] >= self.max_iters:
             status = "iteration_limit"
         return RawSolution(
