@@ -9,7 +9,7 @@ import math
 import numpy as np
 
 from workers.scenario import Scenario
-from workers.separability import analyse
+from workers.certified import SECOND_PASS_MODES, analyse_and_certify
 from workers.solvers import SolverOptions
 from workers.validity import check_validity
 
@@ -42,6 +42,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--max-iters", type=int, default=200_000)
     p.add_argument("--tol", type=float, default=1e-6,
                    help="decision threshold on the robustness (default 1e-6)")
+    p.add_argument("--second-pass", default="auto", choices=list(SECOND_PASS_MODES),
+                   help="re-solve an uncertified verdict: auto (Clarabel up to 32x32, else "
+                        "SCS at 100x tighter eps), clarabel, tight, none")
     p.add_argument("--game", default=None,
                    help="also compute the best see-saw value of a built-in causal game")
     p.add_argument("--seesaw-starts", type=int, default=5)
@@ -88,13 +91,21 @@ def _finite(x: float | None) -> float | None:
 
 
 def check_report(scenario: Scenario, W: np.ndarray, options: SolverOptions,
-                 quantities: tuple[str, ...], method: str) -> dict:
-    """Everything ``check`` prints, as a JSON-ready dict (raises UserError if W is invalid)."""
+                 quantities: tuple[str, ...], method: str, second_pass: str = "auto") -> dict:
+    """Everything ``check`` prints, as a JSON-ready dict (raises UserError if W is invalid).
+
+    The verdict is the certified one: a solver verdict whose certificate does not verify
+    (after the second pass) is reported as ``undecided``.
+    """
     W = _validated(scenario, W)
-    res = analyse(scenario, W, quantities, method, options)
-    out: dict = {"valid": True, "scenario": scenario.describe(), "dims": list(scenario.subsystem_dims),
-                 "verdict": res.verdict, "margin": _finite(res.margin), "reason": res.reason,
-                 "methods": list(res.methods)}
+    res, cv = analyse_and_certify(scenario, W, quantities, method, options, second_pass)
+    out: dict = {"valid": True, "scenario": scenario.describe(),
+                 "dims": list(scenario.subsystem_dims), "verdict": cv.verdict,
+                 "certified": bool(cv.certified), "certificate_margin": _finite(cv.margin),
+                 "certificate_kind": cv.certificate.kind if cv.certificate else None,
+                 "certificate_reason": cv.reason, "passes": cv.passes,
+                 "solver_verdict": res.verdict, "margin": _finite(res.margin),
+                 "reason": res.reason, "methods": list(res.methods)}
     for kind in ("random", "generalized"):
         b = res.bounds.get(kind)
         out[f"{kind}_robustness"] = None if b is None else _finite(b.value)
@@ -166,7 +177,7 @@ def run(args: argparse.Namespace) -> int:
     quantities = _quantities(args.quantities)
     W = read_operator(args.operator)
     try:
-        out = check_report(scenario, W, options, quantities, args.method)
+        out = check_report(scenario, W, options, quantities, args.method, args.second_pass)
     except UserError as exc:
         if args.json:
             print(json.dumps({"valid": False, "error": str(exc)}))
@@ -186,8 +197,12 @@ def out_matrix(W: np.ndarray) -> np.ndarray:
 def render(out: dict) -> str:
     """Human-readable report."""
     lines = [f"scenario       {out['scenario']}", "valid          yes",
-             f"verdict        {out['verdict']}  (margin {_fmt(out['margin'])})",
-             f"reason         {out['reason']}"]
+             f"verdict        {out['verdict']}  ("
+             + ("certified" if out["certified"] else "not certified")
+             + f", certificate margin {_fmt(out['certificate_margin'])})",
+             f"certificate    {out['certificate_reason']}",
+             f"solver         {out['solver_verdict']} (margin {_fmt(out['margin'])}): "
+             f"{out['reason']}"]
     for kind in ("random", "generalized"):
         key = f"{kind}_robustness"
         if f"{key}_bounds" in out:

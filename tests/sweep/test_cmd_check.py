@@ -34,6 +34,22 @@ def test_check_json_keys(ocb_file, capsys):
     assert d["generalized_robustness"] == pytest.approx(3 - 2 * np.sqrt(2), abs=1e-6)
     assert d["witness_value"] == pytest.approx(1 - np.sqrt(2), abs=1e-6)
     assert d["solver"] == "SCS" and d["status"] == "optimal"
+    assert d["certified"] is True and d["certificate_kind"] == "witness"
+    assert 0 < d["certificate_margin"] <= np.sqrt(2) - 1 + 1e-9
+    assert d["certificate_margin"] == pytest.approx(np.sqrt(2) - 1, abs=1e-6)
+
+
+def test_check_comb_certified_separable(tmp_path, capsys, rng):
+    """A random comb (MATH.md sec. 6: separable) gets a certified 'separable' verdict; a
+    separable/nonseparable verdict never comes with certified false."""
+    from workers.families import random_comb
+    from workers.scenario import Scenario
+    path = tmp_path / "comb.npy"
+    np.save(path, random_comb(Scenario.from_dims([2, 2, 2, 2]), (1, 0), rng))
+    code, out, _ = _run(capsys, "check", str(path), "--dims", "2,2,2,2", "--json")
+    d = json.loads(out)
+    assert code == 0 and d["verdict"] == "separable" and d["certified"] is True
+    assert d["certificate_kind"] == "decomposition"
 
 
 def test_check_text_output(ocb_file, capsys):
