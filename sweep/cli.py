@@ -14,7 +14,7 @@ import sys
 from .errors import UserError
 
 COMMAND_MODULES = ("sweep.cmd_check", "sweep.cmd_games", "sweep.cmd_run", "sweep.cmd_summary",
-                   "sweep.cmd_plot", "sweep.cmd_demo")
+                   "sweep.cmd_plot", "sweep.cmd_demo", "sweep.cmd_verify")
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -20,7 +20,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_valida
 from .errors import UserError
 from .spec_run import RunSpec
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 
 class Strict(BaseModel):
@@ -139,6 +139,13 @@ class ComputeSpec(Strict):
                          "families)")
     seed: int = Field(0, ge=0, description="root seed; sample i uses SeedSequence(seed, "
                       "spawn_key=(i,))")
+    certify: bool = Field(True, description="certify every verdict in exact arithmetic "
+                          "(workers.certificates); an uncertified verdict is stored as undecided")
+    second_pass: Literal["auto", "clarabel", "tight", "none"] = Field(
+        "auto", description="re-solve uncertified samples: auto (Clarabel up to 32x32, else SCS "
+        "at 100x tighter eps), clarabel, tight, none")
+    store_certificates: bool = Field(True, description="store each certificate (and its "
+                                     "operator) so 'orderless verify' can re-check the file")
     store_operators: bool = Field(False, description="store each operator in the file")
     store_witnesses: bool = Field(False, description="store each witness in the file")
     game: GameSpec | None = Field(None, description="optional causal-game quantity")

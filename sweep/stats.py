@@ -1,10 +1,11 @@
 """Summary statistics of a results file, per grid point.
 
-* fraction nonseparable among the *decided* samples (separable + nonseparable), with a 95 %
+* fraction nonseparable among the *decided* samples (separable + nonseparable; with
+  ``compute.certify`` every decided verdict is certified, the rest are undecided), with a 95 %
   confidence interval from ``scipy.stats.binomtest(k, n).proportion_ci`` (Wilson by default,
   ``exact`` = Clopper-Pearson);
 * quantiles (5, 25, 50, 75, 95 %) of each stored robustness over samples with a value;
-* counts of undecided, invalid, failed (a solve failed) and error samples;
+* counts of certified, undecided, invalid, failed (a solve failed) and error samples;
 * solve-time mean, median and maximum;
 * with a game quantity: the game's causal bound (LP) and the fraction of samples whose
   see-saw value exceeds it by more than 1e-6 (a certified causal-inequality violation, since
@@ -60,6 +61,7 @@ def point_stats(rows: np.ndarray, game: str | None, method: str) -> dict[str, An
     out: dict[str, Any] = {
         "n": int(len(rows)), "separable": sep, "nonseparable": non,
         "undecided": int(np.sum(verdict == "undecided")),
+        "certified": int(np.sum(rows["certified"])) if "certified" in rows.dtype.names else 0,
         "invalid": int(np.sum(status == "invalid")), "failed": int(np.sum(status == "failed")),
         "error": int(np.sum(status == "error")),
         "nonseparable_fraction": proportion(non, sep + non, method),
@@ -111,7 +113,7 @@ def format_table(summary: dict[str, Any]) -> str:
     head = (f"family: {fam.get('kind')} {fam.get('name') or fam.get('measure') or ''}  "
             f"samples stored: {summary['stored']}/{summary['n_samples']}"
             f"{'' if summary['complete'] else '  (incomplete: rerun to resume)'}")
-    cols = summary["axes"] + ["n", "nonsep", "frac", "95% CI", "undec", "fail", "R_r med",
+    cols = summary["axes"] + ["n", "cert", "nonsep", "frac", "95% CI", "undec", "fail", "R_r med",
                               "t_solve"]
     has_game = any("game" in p for p in summary["points"])
     cols += ["game viol"] if has_game else []
@@ -120,7 +122,7 @@ def format_table(summary: dict[str, Any]) -> str:
     for p in summary["points"]:
         fr = p["nonseparable_fraction"]
         vals = [_fmt(p["coords"][a]) for a in summary["axes"]] + [
-            str(p["n"]), str(p["nonseparable"]), _fmt(fr["fraction"]),
+            str(p["n"]), str(p["certified"]), str(p["nonseparable"]), _fmt(fr["fraction"]),
             f"[{_fmt(fr['ci_low'])},{_fmt(fr['ci_high'])}]", str(p["undecided"]),
             str(p["failed"] + p["error"] + p["invalid"]),
             _fmt(p.get("r_random", p.get("r_random_hi", {})).get("q50", float("nan"))),

@@ -46,6 +46,7 @@ SAMPLE_DTYPE = np.dtype([
     ("r_generalized_lo", "f8"), ("r_generalized_hi", "f8"), ("margin", "f8"),
     ("solver_status", S), ("iterations", "i8"), ("res_pri", "f8"), ("res_dual", "f8"),
     ("gap", "f8"), ("solve_time", "f8"), ("game_value", "f8"), ("aux", "f8"),
+    ("certified", "?"), ("cert_margin", "f8"), ("passes", "i8"),
     ("worker", "S64"), ("message", "S200"),
 ])
 PACKAGES = ("orderless", "numpy", "scipy", "scs", "clarabel", "cvxpy", "dask", "distributed",
@@ -183,11 +184,34 @@ class ResultFile:
                 for j, r in enumerate(rows):
                     if r[key] is not None:
                         self.f[name][n0 + j] = r[key]
+        self._store_certificates(rows)
         self.f.attrs["committed"] = n1
         if self.run_entry is not None:
             self.run_entry["computed"] += len(rows)
         self.f.flush()
         return len(rows)
+
+    def _store_certificates(self, rows: list[dict[str, Any]]) -> None:
+        """Certificates under ``certificates/<index>`` (arrays + the operator they certify).
+
+        Written before ``committed`` moves, so a group whose row is not committed is an
+        orphan of a killed write; it is replaced when that sample is recomputed.
+        """
+        group = self.f.require_group("certificates")
+        for r in rows:
+            if r.get("certificate") is None:
+                continue
+            name = str(r["index"])
+            if name in group:
+                del group[name]
+            g = group.create_group(name)
+            g.create_dataset("operator", data=r["cert_operator"], compression="gzip")
+            for key, arr in r["certificate"].items():
+                arr = np.asarray(arr)
+                if arr.dtype.kind == "U":
+                    g.attrs[key] = str(arr.item())
+                else:
+                    g.create_dataset(key, data=arr, compression="gzip" if arr.ndim else None)
 
     def finish(self, state: str) -> None:
         if self.run_entry is not None:

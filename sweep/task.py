@@ -21,6 +21,7 @@ import numpy as np
 
 from workers.games import get_game
 from workers.seesaw import seesaw
+from workers.certified import analyse_and_certify
 from workers.separability import analyse
 from workers.solvers import SolverOptions
 from workers.validity import check_validity
@@ -31,7 +32,7 @@ from .spec import Spec
 NAN = float("nan")
 FIELDS_FLOAT = ("min_eig", "r_random", "r_random_lo", "r_random_hi", "r_generalized",
                 "r_generalized_lo", "r_generalized_hi", "margin", "res_pri", "res_dual", "gap",
-                "solve_time", "game_value", "aux")
+                "solve_time", "game_value", "aux", "cert_margin")
 
 
 @lru_cache(maxsize=4)
@@ -51,7 +52,8 @@ def blank(index: int, point: int, rep: int) -> dict[str, Any]:
     row: dict[str, Any] = {f: NAN for f in FIELDS_FLOAT}
     row.update(index=index, point=point, rep=rep, status="ok", verdict="", valid=True,
                solver_status="", iterations=0, message="", worker=_worker_name(),
-               operator=None, witness=None)
+               operator=None, witness=None, certified=False, passes=0, certificate=None,
+               cert_operator=None)
     return row
 
 
@@ -59,8 +61,18 @@ def _robustness(plan: Plan, W: np.ndarray, row: dict[str, Any]) -> None:
     comp = plan.spec.compute
     opts = SolverOptions(solver=comp.solver, eps_abs=comp.eps, eps_rel=comp.eps,
                          max_iters=comp.max_iters, tol=comp.tol)
-    res = analyse(plan.scenario, W, tuple(comp.robustness), comp.method, opts)
-    row.update(verdict=res.verdict, margin=res.margin, message=res.reason)
+    if comp.certify:
+        res, cv = analyse_and_certify(plan.scenario, W, tuple(comp.robustness), comp.method,
+                                      opts, comp.second_pass)
+        row.update(verdict=cv.verdict, certified=cv.certified, cert_margin=cv.margin,
+                   passes=cv.passes, margin=res.margin,
+                   message=f"{cv.reason} | solver: {res.reason}")
+        if comp.store_certificates and cv.certificate is not None:
+            row["certificate"] = cv.certificate.to_arrays()
+            row["cert_operator"] = W
+    else:
+        res = analyse(plan.scenario, W, tuple(comp.robustness), comp.method, opts)
+        row.update(verdict=res.verdict, margin=res.margin, message=res.reason)
     solves = []
     for kind, b in res.bounds.items():
         row[f"r_{kind}"] = NAN if b.value is None else b.value
