@@ -4,9 +4,8 @@
 process, so files are read and problems compiled once), computes every sample and returns one
 dict per sample.  It never raises for a sample: an invalid operator is status ``invalid``, a
 failed solve ``failed``, any other exception ``error`` with its message.  No warm starts are
-used, so a sample's operator, seed and verdict do not depend on which task or worker computed
-it; robustness values agree to the solver's accuracy but not bitwise, since the SCS workspace
-of a compiled problem keeps internal state between re-solves in one process.
+used and every cold solve gets a fresh SCS workspace, so a sample's operator, seed, verdict and
+robustness values do not depend on which task or worker computed it.
 """
 
 from __future__ import annotations
