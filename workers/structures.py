@@ -21,7 +21,7 @@ Structures offered (``method``):
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import lru_cache
 from itertools import permutations
 from typing import Sequence
@@ -41,9 +41,26 @@ class Group:
     leaves: tuple[int, ...]
     x_bits: int
     y_bits: int
+    # A second kind of condition (``necessary`` only): the conditional process left to the
+    # remaining parties after any operation of the prefix must be valid.  ``rest_parties``
+    # lists (input bits, output bits) of each remaining party; a pattern whose part on the
+    # remaining systems is nonempty and not valid there is forbidden.
+    rest_parties: tuple[tuple[int, int], ...] = ()
 
     def forbids(self, pattern: int) -> bool:
+        if self.rest_parties:
+            return _conditional_invalid(pattern, self.rest_parties, self.y_bits)
         return bool(pattern & self.x_bits) and not (pattern & self.y_bits)
+
+
+def _conditional_invalid(pattern: int, rest_parties, future_bit: int) -> bool:
+    rest = future_bit
+    for i_bits, o_bits in rest_parties:
+        rest |= i_bits | o_bits
+    r = pattern & rest
+    if r == 0 or r & future_bit:
+        return False
+    return not any((r & i_bits) and not (r & o_bits) for i_bits, o_bits in rest_parties)
 
 
 @dataclass(frozen=True)
@@ -125,7 +142,9 @@ def _merged_rest(scenario: Scenario):
 
     def rest(prefix: tuple[int, ...]) -> int:
         carried = {k: party_bits(scenario, k) for k in range(n)}
-        for depth, k in enumerate(prefix):
+        # only the parties *before* the last one have handed their systems on: the condition
+        # of prefix (k1..kn) says k_n acts before the rest, with k_n's own systems still its own
+        for depth, k in enumerate(prefix[:-1]):
             remaining = [j for j in range(n) if j not in prefix[: depth + 1]]
             if n - depth >= 4 and remaining:  # merging stops at the exact tripartite level
                 r = _receiver(k, remaining, n)
@@ -137,6 +156,43 @@ def _merged_rest(scenario: Scenario):
         return bits
 
     return rest
+
+
+def _conditional_validity_groups(scenario: Scenario, leaves: list[tuple[int, ...]]) -> list[Group]:
+    """For every proper prefix: what the remaining parties receive must be a valid process.
+
+    If the prefix parties act first, every operation they perform leaves the others a
+    (conditional, unnormalised) causally separable and hence valid process; so W_(prefix) has
+    no pattern whose part on the remaining systems is nonempty and outside the valid subspace
+    of the remaining scenario (MATH.md sec. 2 mask, applied to the rest).  In the ``necessary``
+    relaxation the remaining parties are the enlarged ones (carried systems count as inputs).
+    Without this, handing k's input on to its receiver would let that input depend on a later
+    party's output.
+    """
+    n = scenario.n_parties
+    f_bit = 1 << scenario.future_index
+    out = []
+    for length in range(1, n):
+        for pre in sorted({leaf[:length] for leaf in leaves}):
+            members = tuple(j for j, leaf in enumerate(leaves) if leaf[:length] == pre)
+            carried = _carried_after(scenario, pre[:-1])  # the last one's op is arbitrary
+            parties = tuple(
+                (carried[j] & ~(1 << scenario.output_index(j)), 1 << scenario.output_index(j))
+                for j in range(n) if j not in pre)
+            out.append(Group(members, 0, f_bit, parties))
+    return out
+
+
+def _carried_after(scenario: Scenario, prefix: tuple[int, ...]) -> dict[int, int]:
+    """Systems each party holds once every prefix party has acted and handed its systems on
+    (merging stops at the exact tripartite level, as in :func:`_merged_rest`)."""
+    n = scenario.n_parties
+    carried = {k: party_bits(scenario, k) for k in range(n)}
+    for depth, k in enumerate(prefix):
+        remaining = [j for j in range(n) if j not in prefix[: depth + 1]]
+        if n - depth >= 4 and remaining:
+            carried[_receiver(k, remaining, n)] |= carried[k]
+    return carried
 
 
 @lru_cache(maxsize=32)
@@ -153,6 +209,8 @@ def build_structure(scenario: Scenario, method: str) -> CausalStructure:
     leaves = list(permutations(range(n)))
     rest = _merged_rest(scenario) if method == "necessary" else _plain_rest(scenario)
     groups = _prefix_groups(scenario, leaves, rest) + [_past_group(scenario, len(leaves))]
+    if method == "necessary" and n >= 4:
+        groups += _conditional_validity_groups(scenario, leaves)
     if method == "fixed_orders":  # every condition on every comb separately
         groups = [Group((j,), g.x_bits, g.y_bits) for g in groups for j in g.leaves]
     return CausalStructure(method, tuple(leaves), tuple(groups))
@@ -206,7 +264,7 @@ def merged_structure(structure: CausalStructure, classes: Sequence[int]) -> Caus
     """The structure with one leaf per class (labelled by its first member's ordering)."""
     n_cls = max(classes) + 1
     reps = [structure.leaves[classes.index(c)] for c in range(n_cls)]
-    groups = tuple(Group(tuple(sorted({classes[j] for j in g.leaves})), g.x_bits, g.y_bits)
+    groups = tuple(replace(g, leaves=tuple(sorted({classes[j] for j in g.leaves})))
                    for g in structure.groups)
     return CausalStructure(structure.method, tuple(reps), groups)
 

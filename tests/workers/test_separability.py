@@ -55,3 +55,31 @@ def test_bad_quantity():
     p = ocb_process()
     with pytest.raises(ValueError, match="quantities"):
         analyse(p.scenario, p.matrix, ("entropy",))
+
+
+def _four_party_cases(rng):
+    """OCB on A, B with two input-only parties C, D in white noise, a random valid process
+    and a comb, for four parties (dims A 2->2, B 2->2 or 2->1, C 2->1, D 2->1)."""
+    from tests.conftest import random_valid_process
+    from workers.scenario import Scenario
+
+    s_ocb = Scenario.from_dims([2, 2, 2, 2, 2, 1, 2, 1])
+    s = Scenario.from_dims([2, 2, 2, 1, 2, 1, 2, 1])
+    return [(s_ocb, np.kron(ocb_process().matrix, np.eye(4) / 4)),
+            (s, random_valid_process(s, rng, 0.95)), (s, random_comb(s, (3, 1, 0, 2), rng))]
+
+
+def test_four_party_bounds_are_ordered(rng):
+    """For N = 4 the necessary-condition robustness is <= the sufficient-condition one
+    (nested sets, Wechs, Abbott, Branciard, NJP 21, 013027 (2019)); parties with trivial
+    outputs added to OCB leave R_r = sqrt2 - 1 (common practice: an input-only party in white
+    noise cannot change the causal structure between A and B)."""
+    opts = SolverOptions(eps_abs=1e-6, eps_rel=1e-6, max_iters=20_000)
+    for k, (s, W) in enumerate(_four_party_cases(rng)):
+        r = analyse(s, W, ("random",), options=opts)
+        b = r.bounds["random"]
+        assert b.lower <= b.upper + 1e-6
+        if k == 0:
+            assert b.lower == pytest.approx(np.sqrt(2) - 1, abs=1e-4)
+            assert b.upper == pytest.approx(np.sqrt(2) - 1, abs=1e-4)
+            assert r.verdict == "nonseparable"
