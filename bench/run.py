@@ -186,7 +186,36 @@ def white_noise_grid(n: int) -> Row:
                f"baseline = cold starts; max witness-value diff {wit:.1e}")
 
 
+def sweep_scaling(n: int) -> Row:
+    """A bipartite sweep of ``n`` samples: 2 workers against 1 (fast = 2 workers), and the
+    dask scheduling + HDF5 storage overhead of 1 worker against the serial in-process run."""
+    import tempfile
+
+    from sweep.execute import run_sweep
+    from sweep.spec import parse_spec
+    from sweep.spec_run import RunSpec
+
+    spec = parse_spec({"scenario": {"dims": [2, 2, 2, 2]},
+                       "family": {"kind": "ensemble", "measure": "valid_direction"},
+                       "compute": {"samples": n, "seed": 7, "eps": 1e-8}})
+    walls = {}
+    with tempfile.TemporaryDirectory() as tmp:
+        for label, run in (("serial", RunSpec(cluster="serial", progress=False)),
+                           ("1", RunSpec(cluster="local", workers=1, progress=False)),
+                           ("2", RunSpec(cluster="local", workers=2, progress=False))):
+            t0 = time.perf_counter()
+            run_sweep(spec, f"{tmp}/{label}.h5", run)
+            walls[label] = time.perf_counter() - t0
+    over = (walls["1"] - walls["serial"]) / walls["serial"]
+    return Row("sweep 2 workers vs 1", n, walls["2"] / n, walls["1"] / n, float("nan"),
+               _peak_mib(), f"speed-up {walls['1'] / walls['2']:.2f}x; 1-worker dask + "
+               f"cluster start-up overhead vs serial {100 * over:.1f}% (serial "
+               f"{walls['serial']:.1f} s, 1 worker {walls['1']:.1f} s, 2 workers "
+               f"{walls['2']:.1f} s, wall times incl. cluster start)")
+
+
 TARGETS: dict[str, Callable[[bool], Row]] = {
+    "sweep-scaling": lambda q: sweep_scaling(60 if q else 200),
     "bipartite-random": lambda q: bipartite("random", 10 if q else 30),
     "bipartite-generalized": lambda q: bipartite("generalized", 5 if q else 15),
     "tripartite-small": lambda q: tripartite_small(3 if q else 6),

@@ -45,6 +45,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--second-pass", default="auto", choices=list(SECOND_PASS_MODES),
                    help="re-solve an uncertified verdict: auto (Clarabel up to 32x32, else "
                         "SCS at 100x tighter eps), clarabel, tight, none")
+    p.add_argument("--force-solve", action="store_true",
+                   help="solve the SDPs even when the operator is recognised as a comb")
     p.add_argument("--game", default=None,
                    help="also compute the best see-saw value of a built-in causal game")
     p.add_argument("--seesaw-starts", type=int, default=5)
@@ -91,14 +93,16 @@ def _finite(x: float | None) -> float | None:
 
 
 def check_report(scenario: Scenario, W: np.ndarray, options: SolverOptions,
-                 quantities: tuple[str, ...], method: str, second_pass: str = "auto") -> dict:
+                 quantities: tuple[str, ...], method: str, second_pass: str = "auto",
+                 force_solve: bool = False) -> dict:
     """Everything ``check`` prints, as a JSON-ready dict (raises UserError if W is invalid).
 
     The verdict is the certified one: a solver verdict whose certificate does not verify
     (after the second pass) is reported as ``undecided``.
     """
     W = _validated(scenario, W)
-    res, cv = analyse_and_certify(scenario, W, quantities, method, options, second_pass)
+    res, cv = analyse_and_certify(scenario, W, quantities, method, options, second_pass,
+                                  force_solve)
     out: dict = {"valid": True, "scenario": scenario.describe(),
                  "dims": list(scenario.subsystem_dims), "verdict": cv.verdict,
                  "certified": bool(cv.certified), "certificate_margin": _finite(cv.margin),
@@ -177,7 +181,8 @@ def run(args: argparse.Namespace) -> int:
     quantities = _quantities(args.quantities)
     W = read_operator(args.operator)
     try:
-        out = check_report(scenario, W, options, quantities, args.method, args.second_pass)
+        out = check_report(scenario, W, options, quantities, args.method, args.second_pass,
+                           args.force_solve)
     except UserError as exc:
         if args.json:
             print(json.dumps({"valid": False, "error": str(exc)}))

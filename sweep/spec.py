@@ -139,6 +139,8 @@ class ComputeSpec(Strict):
                          "families)")
     seed: int = Field(0, ge=0, description="root seed; sample i uses SeedSequence(seed, "
                       "spawn_key=(i,))")
+    force_solve: bool = Field(False, description="solve the SDPs even for operators recognised "
+                              "as combs (PSD and inside one order's mask: separable, R = 0)")
     certify: bool = Field(True, description="certify every verdict in exact arithmetic "
                           "(workers.certificates); an uncertified verdict is stored as undecided")
     second_pass: Literal["auto", "clarabel", "tight", "none"] = Field(

@@ -62,7 +62,7 @@ def _robustness(plan: Plan, W: np.ndarray, row: dict[str, Any]) -> None:
                          max_iters=comp.max_iters, tol=comp.tol)
     if comp.certify:
         res, cv = analyse_and_certify(plan.scenario, W, tuple(comp.robustness), comp.method,
-                                      opts, comp.second_pass)
+                                      opts, comp.second_pass, comp.force_solve)
         row.update(verdict=cv.verdict, certified=cv.certified, cert_margin=cv.margin,
                    passes=cv.passes, margin=res.margin,
                    message=f"{cv.reason} | solver: {res.reason}")
@@ -70,7 +70,8 @@ def _robustness(plan: Plan, W: np.ndarray, row: dict[str, Any]) -> None:
             row["certificate"] = cv.certificate.to_arrays()
             row["cert_operator"] = W
     else:
-        res = analyse(plan.scenario, W, tuple(comp.robustness), comp.method, opts)
+        res = analyse(plan.scenario, W, tuple(comp.robustness), comp.method, opts,
+                      force_solve=comp.force_solve)
         row.update(verdict=res.verdict, margin=res.margin, message=res.reason)
     solves = []
     for kind, b in res.bounds.items():

@@ -166,18 +166,21 @@ def analyse_and_certify(
     method: str,
     options: SolverOptions,
     second_pass: str = "auto",
+    force_solve: bool = False,
 ) -> tuple[SeparabilityResult, CertifiedVerdict]:
     """Solve, certify, and re-solve once with :func:`second_pass_options` if uncertified.
 
     Returns the analysis whose certificate is reported and the certified verdict (its
     ``passes`` field says whether the second pass was needed).
     """
-    res = analyse(scenario, W, quantities, method, options, keep_certificate=True)
+    res = analyse(scenario, W, quantities, method, options, keep_certificate=True,
+                  force_solve=force_solve)
     cv = certify(scenario, W, res, options.tol)
     second = None if cv.certified else second_pass_options(scenario, options, second_pass)
     if second is None:
         return res, cv
-    res2 = analyse(scenario, W, quantities, method, second, keep_certificate=True)
+    res2 = analyse(scenario, W, quantities, method, second, keep_certificate=True,
+                   force_solve=force_solve)
     cv2 = certify(scenario, W, res2, second.tol)
     reason = cv2.reason if cv2.certified else f"pass 1: {cv.reason}; pass 2: {cv2.reason}"
     return res2, replace(cv2, reason=reason, passes=2, analysis=res2)

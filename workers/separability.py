@@ -22,6 +22,7 @@ import numpy as np
 
 from .robustness import RobustnessResult, get_problem
 from .scenario import Scenario
+from .shortcuts import try_comb_shortcut
 from .solvers import SolverOptions
 
 VERDICTS = ("separable", "nonseparable", "undecided")
@@ -122,6 +123,7 @@ def analyse(
     method: str = "auto",
     options: SolverOptions = SolverOptions(),
     keep_certificate: bool = False,
+    force_solve: bool = False,
 ) -> SeparabilityResult:
     """Decide causal separability of W and compute the requested robustness measures.
 
@@ -136,6 +138,8 @@ def analyse(
         or one structure of :data:`workers.structures.METHODS`.
     options
         Solver choice, tolerances and the decision threshold ``tol``.
+    force_solve
+        Solve the SDPs even when W is recognised as a comb (:mod:`workers.shortcuts`).
     """
     bad = [q for q in quantities if q not in QUANTITIES]
     if bad or not quantities:
@@ -143,9 +147,13 @@ def analyse(
                          f"{list(QUANTITIES)}")
     methods = methods_for(scenario, method)
     bounds = {}
+    known = None if force_solve else try_comb_shortcut(scenario, W, tuple(quantities), methods)
     for kind in quantities:
-        res = {m: get_problem(scenario, kind, m, options).solve(W, keep_certificate=keep_certificate)
-               for m in methods}
+        if known is not None:
+            res = known[kind]
+        else:
+            res = {m: get_problem(scenario, kind, m, options).solve(
+                W, keep_certificate=keep_certificate) for m in methods}
         bounds[kind] = _bounds(kind, res)
     deciding = bounds["random"] if "random" in bounds else bounds[quantities[0]]
     verdict, margin, reason = decide(deciding, options.tol)
