@@ -118,10 +118,8 @@ def vec_entries(
                   SQRT2 * vo.imag, -SQRT2 * vo.imag]
     else:
         raise ValueError(f"fmt={fmt!r}, expected one of {list(FORMATS)}")
+    # the diagonal of the off-diagonal block would carry -Im X[r, r] = 0: nothing to add
     i, j, val = np.concatenate(i_list), np.concatenate(j_list), np.concatenate(v_list)
-    if fmt == "upper_real":
-        # the diagonal of the off-diagonal block carries -Im X[r, r] = 0; nothing to add
-        pass
     return _tri_index(i, j, m, fmt), val
 
 
@@ -132,24 +130,15 @@ def basis_to_cone(dims: tuple[int, ...], fmt: str) -> sp.csc_matrix:
     a, r, c, v = product_entries(dims)
     low = r >= c
     a, r, c, v = a[low], r[low], c[low], v[low]
-    pos_all, val_all, col_all = [], [], []
-    # entries are grouped by alpha implicitly; vec_entries keeps the order within each slice
-    order = np.argsort(a, kind="stable")
-    a, r, c, v = a[order], r[order], c[order], v[order]
     diag = r == c
-    # vec_entries reorders entries; recompute alpha per output entry with the same masks
     pos, val = vec_entries(r, c, v, n, fmt)
+    # vec_entries lists diagonal entries first, then the off-diagonal ones once per slot
+    # they fill (2 in the complex layout, 4 in the real embeddings): repeat alpha likewise
     if fmt == "scs_complex":
         col = np.concatenate([a[diag], a[~diag], a[~diag]])
     else:
         col = np.concatenate([a[diag], a[diag]] + [a[~diag]] * 4)
-    pos_all.append(pos)
-    val_all.append(val)
-    col_all.append(col)
-    M = sp.csc_matrix(
-        (np.concatenate(val_all), (np.concatenate(pos_all), np.concatenate(col_all))),
-        shape=(cone_size(n, fmt), n * n),
-    )
+    M = sp.csc_matrix((val, (pos, col)), shape=(cone_size(n, fmt), n * n))
     M.eliminate_zeros()
     return M
 
