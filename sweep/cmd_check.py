@@ -148,7 +148,7 @@ def _validated(scenario: Scenario, W: np.ndarray) -> np.ndarray:
                         f"{rep.hermiticity_residual:.2e})")
     if not rep.valid:
         raise UserError("operator is not a valid process: " + "; ".join(rep.problems()))
-    return (W + W.conj().T) / 2
+    return hermitian_part(W)
 
 
 def add_game(out: dict, scenario: Scenario, W: np.ndarray, name: str, starts: int,
@@ -190,12 +190,13 @@ def run(args: argparse.Namespace) -> int:
     except ValueError as exc:
         raise UserError(str(exc)) from None
     if args.game:
-        add_game(out, scenario, out_matrix(W), args.game, args.seesaw_starts, args.seed)
+        add_game(out, scenario, hermitian_part(W), args.game, args.seesaw_starts, args.seed)
     print(json.dumps(out, indent=2) if args.json else render(out))
     return 0
 
 
-def out_matrix(W: np.ndarray) -> np.ndarray:
+def hermitian_part(W: np.ndarray) -> np.ndarray:
+    """(W + W^dagger) / 2: removes the rounding asymmetry of a matrix read from a file."""
     return (W + W.conj().T) / 2
 
 

@@ -8,7 +8,7 @@ status (``"failed"``, ``"error"``) and the message is kept.
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
@@ -80,7 +80,6 @@ class RawSolution:
     solve_time: float
     setup_time: float
     message: str = ""
-    extra: dict = field(default_factory=dict)
 
 
 _SCS_STATUS = {1: "optimal", 2: "optimal_inaccurate", -1: "unbounded", -6: "unbounded",
