@@ -11,7 +11,7 @@ import numpy as np
 from workers.scenario import Scenario
 from workers.certified import SECOND_PASS_MODES, analyse_and_certify
 from workers.solvers import SolverOptions
-from workers.validity import check_validity
+from workers.validity import check_validity, hermitian_part
 
 from .errors import UserError
 from .operator_files import parse_dims, read_operator
@@ -193,11 +193,6 @@ def run(args: argparse.Namespace) -> int:
         add_game(out, scenario, hermitian_part(W), args.game, args.seesaw_starts, args.seed)
     print(json.dumps(out, indent=2) if args.json else render(out))
     return 0
-
-
-def hermitian_part(W: np.ndarray) -> np.ndarray:
-    """(W + W^dagger) / 2: removes the rounding asymmetry of a matrix read from a file."""
-    return (W + W.conj().T) / 2
 
 
 def render(out: dict) -> str:

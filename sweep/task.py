@@ -23,7 +23,7 @@ from workers.seesaw import seesaw
 from workers.certified import analyse_and_certify
 from workers.separability import analyse
 from workers.solvers import SolverOptions
-from workers.validity import check_validity
+from workers.validity import check_validity, hermitian_part
 
 from .plan import Plan
 from .spec import Spec
@@ -112,6 +112,9 @@ def compute_sample(plan: Plan, index: int) -> dict[str, Any]:
         if comp.validity and not rep_v.valid:
             row.update(status="invalid", valid=False, message="; ".join(rep_v.problems()))
             return row
+        W = hermitian_part(W)  # float rounding leaves ~1e-17 asymmetry; exact checks need none
+        if comp.store_operators:
+            row["operator"] = W
         if comp.robustness:
             _robustness(plan, W, row)
         if comp.game is not None:

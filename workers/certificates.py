@@ -120,11 +120,12 @@ def _floor_float(q: Fraction) -> float:
     return float(np.nextafter(f, -np.inf)) if Fraction(f) > q else f
 
 
-def _exact_blocks(blocks: np.ndarray, dims: tuple[int, ...]) -> tuple[np.ndarray, int]:
+def _exact_blocks(blocks: np.ndarray, dims: tuple[int, ...], what: str = "certificate blocks"
+                  ) -> tuple[np.ndarray, int]:
     """Integer coefficients (blocks x alphas) of a stack of matrices, with their denominator."""
     re, im, den = hermitian_integers(blocks)
     if np.any(re != np.swapaxes(re, -1, -2)) or np.any(im != -np.swapaxes(im, -1, -2)):
-        raise ValueError("certificate blocks are not exactly Hermitian")
+        raise ValueError(f"{what} are not exactly Hermitian (take (W + W^dagger)/2 first)")
     return np.array([exact_coefficients(re[j], im[j], dims) for j in range(len(re))]), den
 
 
@@ -185,7 +186,7 @@ def verify_witness(scenario: Scenario, W: np.ndarray, cert: Certificate) -> Veri
         return VerificationReport(False, "undecided", float("nan"), f"dual blocks violate the "
                                   f"witness constraints (relative residual {resid:.2e})")
     mu = max(Fraction(0), -min(_min_eig(y_hat[j], dims, den * L) for j in range(len(y))))
-    wc, wden = _exact_blocks(np.asarray(W)[None], dims)
+    wc, wden = _exact_blocks(np.asarray(W)[None], dims, "W's entries")
     tr_sw = _trace_pair(s, wc[0], dims) / (den * L * wden)
     tr_w = Fraction(int(wc[0][0]), wden)  # tau_0 = 1
     d_i = scenario.d_in_total
@@ -210,7 +211,7 @@ def verify_decomposition(scenario: Scenario, W: np.ndarray, cert: Certificate,
     delta = float(np.asarray(cert.arrays["delta"]))
     tol = float(cert.metadata["tol_separable"])
     x, den = _exact_blocks(cert.arrays["leaves"], dims)
-    wc, wden = _exact_blocks(np.asarray(W)[None], dims)
+    wc, wden = _exact_blocks(np.asarray(W)[None], dims, "W's entries")
     d_i = scenario.d_in_total
     noise = Fraction(delta) * Fraction(scenario.dim, d_i)  # Tr(tau_0 delta 1°)
     scale = int(np.lcm.reduce([den, wden, noise.denominator], dtype=object))

@@ -25,6 +25,7 @@ import scipy.sparse as sp
 
 from .basis import pattern_codes, to_coefficients
 from .cone_vectors import basis_to_cone, cone_size
+from .leaf_spaces import reduced_dims, selection, used_bits
 from .masks import valid_mask
 from .scenario import Scenario
 from .structures import (CausalStructure, build_structure, leaf_classes, merged_structure,
@@ -55,6 +56,12 @@ class ConicProblem:
     leaf_class
         PSD block of each leaf of ``structure``: leaves with identical conditions share one
         block (see :func:`workers.structures.leaf_classes`); empty means one block per leaf.
+    block_spaces
+        Subsystem dimensions of each PSD block, with subsystems on which that block is the
+        identity set to 1 (:mod:`workers.leaf_spaces`); the block is X with W_j = X ⊗ 1.
+    block_maps
+        Per leaf block, the sparse map from coefficient vectors (length D^2) to the block's
+        cone vector (before the 1/D scale): column alpha is vec(sigma'_alpha).
     """
 
     scenario: Scenario
@@ -70,6 +77,8 @@ class ConicProblem:
     omega_index: np.ndarray
     n_z: int
     leaf_class: tuple[int, ...] = ()
+    block_spaces: tuple[tuple[int, ...], ...] = ()
+    block_maps: tuple[sp.csr_matrix, ...] = ()
 
     @property
     def n_leaves(self) -> int:
@@ -84,6 +93,10 @@ class ConicProblem:
     def classes(self) -> tuple[int, ...]:
         """Block index of every leaf."""
         return self.leaf_class or tuple(range(self.structure.n_leaves))
+
+    def spaces(self) -> tuple[tuple[int, ...], ...]:
+        """Subsystem dimensions of every PSD block (full dims where nothing is dropped)."""
+        return self.block_spaces or tuple(self.scenario.subsystem_dims for _ in self.cone_dims)
 
     def b(self, w: np.ndarray) -> np.ndarray:
         return self.b_map @ w
@@ -146,13 +159,14 @@ def _leaf_z_maps(blocks: list, n_leaves: int, D2: int, n_z: int) -> list[sp.csc_
 
 def compile_problem(
     scenario: Scenario, method: str, kind: str, fmt: str = "scs_complex",
-    merge_leaves: bool = True, sparse_null: bool = True,
+    merge_leaves: bool = True, sparse_null: bool = True, reduce_leaves: bool = True,
 ) -> ConicProblem:
     """Build the conic form of the ``kind`` robustness for the structure ``method``.
 
-    ``merge_leaves`` replaces leaves with identical conditions by one block and
-    ``sparse_null`` uses an echelon (sparse) null-space basis instead of the orthonormal one;
-    both leave the optimum unchanged and only change the cost.
+    ``merge_leaves`` replaces leaves with identical conditions by one block,
+    ``sparse_null`` uses an echelon (sparse) null-space basis instead of the orthonormal one,
+    and ``reduce_leaves`` drops the subsystems on which a leaf is the identity from its PSD
+    block; all three leave the optimum unchanged and only change the cost.
     """
     if kind not in KINDS:
         raise ValueError(f"kind={kind!r}, expected one of {list(KINDS)}")
@@ -173,7 +187,6 @@ def compile_problem(
         spanned[sel] = sysm.spanned
     blocks, n_z = _null_parametrisation(codes, systems, sparse_null)
     zmaps = _leaf_z_maps(blocks, m, D * D, n_z)
-    V = basis_to_cone(dims, fmt)
     if kind == "random":
         noise = to_coefficients(white_noise(scenario), dims)
         extra = [sp.csc_matrix((P[j] * noise)[:, None]) for j in range(m)]
@@ -184,19 +197,26 @@ def compile_problem(
         extra = [sp.diags(P[j]).tocsc()[:, omega_index] for j in range(m)]
         c_extra = np.zeros(len(omega_index))
         c_extra[omega_index == 0] = 1.0 / scenario.d_out_total
-    leaf_rows = [-(V @ sp.hstack([extra[j], zmaps[j]]).tocsc()) / D for j in range(m)]
-    cone_dims = [D] * m
+    spaces, maps, leaf_rows, b_blocks = [], [], [], []
+    for j in range(m):
+        support = (P[j] != 0) | (np.diff(zmaps[j].tocsr().indptr) > 0)
+        small = reduced_dims(dims, used_bits(codes, support)) if reduce_leaves else dims
+        to_block = basis_to_cone(small, fmt) @ selection(dims, small)  # vec(sigma'_a) per a
+        spaces.append(small)
+        maps.append(to_block.tocsr())
+        leaf_rows.append(-(to_block @ sp.hstack([extra[j], zmaps[j]]).tocsc()) / D)
+        b_blocks.append(to_block @ sp.diags(P[j]) / D)
     if kind == "generalized":
+        V = basis_to_cone(dims, fmt)
         om = sp.hstack([V[:, omega_index], sp.csc_matrix((V.shape[0], n_z))])
         leaf_rows.append(-om.tocsc() / D)
-        cone_dims.append(D)
-    A = sp.vstack(leaf_rows).tocsc()
-    b_blocks = [V @ sp.diags(P[j]) / D for j in range(m)]
-    if kind == "generalized":
         b_blocks.append(sp.csr_matrix((V.shape[0], D * D)))
+        spaces.append(dims)
+    A = sp.vstack(leaf_rows).tocsc()
     b_map = sp.vstack(b_blocks).tocsr()
     c = np.concatenate([c_extra, np.zeros(n_z)])
+    cone_dims = tuple(int(np.prod(s)) for s in spaces)
     return ConicProblem(
-        scenario, full, kind, fmt, A, c, b_map, tuple(cone_dims), P, spanned,
-        omega_index, n_z, classes,
+        scenario, full, kind, fmt, A, c, b_map, cone_dims, P, spanned,
+        omega_index, n_z, classes, tuple(spaces), tuple(maps),
     )

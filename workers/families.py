@@ -157,7 +157,8 @@ def random_comb(
     perm = np.argsort(positions)
     T = rho.reshape(dims + dims).transpose(list(perm) + [n_legs + p for p in perm])
     D = scenario.dim
-    return T.reshape(D, D)
+    T = T.reshape(D, D)
+    return (T + T.conj().T) / 2  # vec vec^dagger in BLAS is Hermitian only up to rounding
 
 
 def white_noise_mixture(scenario: Scenario, W: np.ndarray, p: float) -> np.ndarray:

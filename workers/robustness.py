@@ -14,8 +14,9 @@ from functools import lru_cache
 import numpy as np
 
 from .basis import from_coefficients, to_coefficients
-from .cone_vectors import basis_to_cone, cone_to_matrix
+from .cone_vectors import cone_to_matrix
 from .conic import ConicProblem, compile_problem
+from .leaf_spaces import embed_identity
 from .scenario import Scenario
 from .solvers import RawSolution, SolverOptions, get_backend
 from .validity import check_shape
@@ -138,26 +139,28 @@ class RobustnessProblem:
     def _witness_coefficients(self, y: np.ndarray, keep: bool):
         """s_alpha = sum_j P_{j alpha} Tr(sigma_alpha Y_j): the witness read from the duals."""
         prob = self.problem
-        V = basis_to_cone(self.scenario.subsystem_dims, prob.fmt)
-        slices = prob.block_slices()
+        dims = self.scenario.subsystem_dims
+        slices, spaces = prob.block_slices(), prob.spaces()
         s = np.zeros(prob.leaf_particular.shape[1])
         for j in range(prob.n_blocks):
-            s += prob.leaf_particular[j] * (V.T @ y[slices[j]])
+            s += prob.leaf_particular[j] * (prob.block_maps[j].T @ y[slices[j]])
         duals = None
         if keep:
-            mats = [cone_to_matrix(y[sl], n, prob.fmt) for sl, n in zip(slices, prob.cone_dims)]
+            mats = [embed_identity(cone_to_matrix(y[sl], n, prob.fmt), dims, small,
+                                   n / self.scenario.dim)
+                    for sl, n, small in zip(slices, prob.cone_dims, spaces)]
             # every leaf of a merged block has that block's dual (same conditions, same cone)
             duals = tuple([mats[c] for c in prob.classes()] + mats[prob.n_blocks:])
         return s, duals
 
     def _primal_blocks(self, s: np.ndarray):
         prob = self.problem
-        mats = [cone_to_matrix(s[sl], n, prob.fmt) for sl, n in zip(prob.block_slices(),
-                                                                     prob.cone_dims)]
-        if prob.fmt != "scs_complex":
-            mats = [m / 2 for m in mats]
+        dims = self.scenario.subsystem_dims
         # cone_to_matrix returns the dual-pairing matrix; for a primal slack of the complex
-        # format this is exactly the matrix itself
+        # format this is exactly the matrix itself (the real embeddings count it twice)
+        half = 1.0 if prob.fmt == "scs_complex" else 0.5
+        mats = [embed_identity(cone_to_matrix(s[sl], n, prob.fmt), dims, small, half)
+                for sl, n, small in zip(prob.block_slices(), prob.cone_dims, prob.spaces())]
         classes = prob.classes()
         sizes = np.bincount(classes)
         # a merged block is split equally among its leaves (each part PSD, same conditions)

@@ -234,6 +234,7 @@ def pattern_systems(structure: CausalStructure, patterns: Sequence[int]) -> dict
         rank = int(np.sum(s > 1e-10 * max(s[0], 1.0)))
         null = Vt[rank:].T.copy()
         part = np.linalg.pinv(C, rcond=1e-10) @ h
+        part[np.abs(part) < 1e-12] = 0.0  # rounding noise on leaves the pattern forbids
         spanned = bool(np.allclose(C @ part, h, atol=1e-9))
         if not spanned:
             part = np.zeros(m)

@@ -64,6 +64,13 @@ class ValidityReport:
         return out
 
 
+def hermitian_part(W: np.ndarray) -> np.ndarray:
+    """(W + W^dagger) / 2: exactly Hermitian, removing the rounding asymmetry of a matrix
+    built in floating point or read from a file (check the asymmetry first)."""
+    W = np.asarray(W)
+    return (W + W.conj().T) / 2
+
+
 def check_shape(scenario: Scenario, W: np.ndarray) -> np.ndarray:
     """Return W as a complex 2-D array, or raise a one-line error naming the mismatch."""
     W = np.asarray(W)
