@@ -153,21 +153,43 @@ def matrix_to_cone(X: np.ndarray, fmt: str) -> np.ndarray:
     return out
 
 
+def complex_cone_to_matrices(vecs: np.ndarray, n: int) -> np.ndarray:
+    """``scs_complex`` vectors (..., n^2) -> Hermitian matrices (..., n, n), the inverse of
+    :func:`matrices_to_complex_cone` (the layout is an isometry: <vec X, vec Y> = Tr(X Y))."""
+    vecs = np.asarray(vecs, dtype=float)
+    r, c = np.tril_indices(n)
+    base = _complex_index(r, c, n)
+    diag = r == c
+    Y = np.zeros(vecs.shape[:-1] + (n, n), dtype=complex)
+    Y[..., r[diag], c[diag]] = vecs[..., base[diag]]
+    ro, co, bo = r[~diag], c[~diag], base[~diag]
+    # <vec(X), y> = sum_diag X y + sum_off sqrt2 (Re X y_re + Im X y_im) = Tr(X Y) when
+    # Y[r, c] = (y_re + i y_im) / sqrt2 for r > c (Hermitian completion)
+    Y[..., ro, co] = (vecs[..., bo] + 1j * vecs[..., bo + 1]) / SQRT2
+    Y[..., co, ro] = np.conj(Y[..., ro, co])
+    return Y
+
+
+def matrices_to_complex_cone(M: np.ndarray) -> np.ndarray:
+    """Hermitian matrices (..., n, n) -> ``scs_complex`` vectors (..., n^2) (lower triangle)."""
+    M = np.asarray(M)
+    n = M.shape[-1]
+    r, c = np.tril_indices(n)
+    base = _complex_index(r, c, n)
+    diag = r == c
+    out = np.zeros(M.shape[:-2] + (n * n,))
+    out[..., base[diag]] = M[..., r[diag], c[diag]].real
+    low = M[..., r[~diag], c[~diag]]
+    out[..., base[~diag]] = SQRT2 * low.real
+    out[..., base[~diag] + 1] = SQRT2 * low.imag
+    return out
+
+
 def cone_to_matrix(vec: np.ndarray, n: int, fmt: str) -> np.ndarray:
     """Cone vector -> Hermitian matrix Y with <vec(X), vec> = Tr(X Y) for all Hermitian X."""
     vec = np.asarray(vec, dtype=float)
     if fmt == "scs_complex":
-        r, c = np.tril_indices(n)
-        base = _complex_index(r, c, n)
-        diag = r == c
-        Y = np.zeros((n, n), dtype=complex)
-        Y[r[diag], c[diag]] = vec[base[diag]]
-        ro, co, bo = r[~diag], c[~diag], base[~diag]
-        # <vec(X), y> = sum_diag X y + sum_off sqrt2 (Re X y_re + Im X y_im) = Tr(X Y) when
-        # Y[r, c] = (y_re + i y_im) / sqrt2 for r > c (Hermitian completion)
-        Y[ro, co] = (vec[bo] + 1j * vec[bo + 1]) / SQRT2
-        Y[co, ro] = np.conj(Y[ro, co])
-        return Y
+        return complex_cone_to_matrices(vec, n)
     m = 2 * n
     i, j = (np.triu_indices(m) if fmt == "upper_real" else np.tril_indices(m))
     R = np.zeros((m, m))

@@ -18,7 +18,7 @@ from .cone_vectors import cone_to_matrix
 from .conic import ConicProblem, compile_problem
 from .leaf_spaces import embed_identity
 from .scenario import Scenario
-from .solvers import RawSolution, SolverOptions, get_backend
+from .solvers import FALLBACK, RawSolution, SolverOptions, get_backend, resolve_solver
 from .validity import check_shape
 
 FAILED = ("failed", "error", "infeasible", "unbounded")
@@ -79,10 +79,12 @@ class RobustnessProblem:
         method: str = "exact",
         options: SolverOptions = SolverOptions(),
     ) -> None:
-        backend_cls = get_backend(options.solver)
-        self.scenario, self.kind, self.method, self.options = scenario, kind, method, options
-        self.problem: ConicProblem = compile_problem(scenario, method, kind, backend_cls.fmt)
-        self.backend = backend_cls(self.problem, options)
+        self.scenario, self.kind, self.method = scenario, kind, method
+        fmt = "upper_real" if options.solver.upper() == "CLARABEL" else "scs_complex"
+        self.problem: ConicProblem = compile_problem(scenario, method, kind, fmt)
+        solver = resolve_solver(options.solver, self.problem)
+        self.options = replace(options, solver=solver)
+        self.backend = get_backend(solver)(self.problem, self.options)
 
     def coefficients(self, W: np.ndarray) -> np.ndarray:
         """Coefficient vector of W; raises if W leaves the span of the causal structure."""
@@ -106,14 +108,28 @@ class RobustnessProblem:
         w = self.coefficients(W)
         warm = warm_start.raw if warm_start is not None and self.backend.warm_startable else None
         raw = self.backend.solve(self.problem.b(w), warm)
-        result = self._result(raw, w, keep_certificate)
+        return self._finish(W, raw, w, keep_certificate)
+
+    def solve_many(self, Ws, keep_certificate: bool = False) -> list[RobustnessResult]:
+        """Solve for every W of ``Ws``; one batched call when the back-end has one (IPM),
+        so the per-iteration work is shared by the batch."""
+        ws = [self.coefficients(W) for W in Ws]
+        if not ws:
+            return []
+        many = getattr(self.backend, "solve_many", None)
+        bs = np.array([self.problem.b(w) for w in ws])
+        raws = many(bs) if many is not None else [self.backend.solve(b) for b in bs]
+        return [self._finish(W, raw, w, keep_certificate) for W, raw, w in zip(Ws, raws, ws)]
+
+    def _finish(self, W, raw: RawSolution, w: np.ndarray, keep: bool) -> RobustnessResult:
+        """The result of a raw solve, retried once with the fallback back-end if it failed."""
+        result = self._result(raw, w, keep)
         if result.status in RETRY and self.options.fallback:
-            other = "CLARABEL" if self.options.solver.upper() == "SCS" else "SCS"
             # the other back-end keeps the tolerances but its own default iteration cap
-            alt_opts = replace(self.options, solver=other, fallback=False,
-                               max_iters=SolverOptions().max_iters)
+            alt_opts = replace(self.options, solver=FALLBACK[self.options.solver],
+                               fallback=False, max_iters=SolverOptions().max_iters)
             alt = get_problem(self.scenario, self.kind, self.method, alt_opts)
-            second = alt.solve(W, keep_certificate=keep_certificate)
+            second = alt.solve(W, keep_certificate=keep)
             return replace(second, fallback_from=f"{result.solver}:{result.status}")
         return result
 

@@ -28,7 +28,9 @@ class SolverOptions:
     Attributes
     ----------
     solver
-        ``"SCS"`` (first-order, default) or ``"CLARABEL"`` (interior point).
+        ``"AUTO"`` (default: the built-in batched interior point ``"IPM"`` when the problem
+        is small enough for it, see :func:`workers.solver_ipm.fits`, else ``"SCS"``),
+        ``"SCS"`` (first-order), ``"CLARABEL"`` (interior point, real embedding) or ``"IPM"``.
     eps_abs, eps_rel
         SCS's absolute/relative tolerances; Clarabel's ``tol_gap_abs/rel`` and ``tol_feas``.
     max_iters
@@ -42,7 +44,7 @@ class SolverOptions:
         solver's own accuracy (see :mod:`workers.separability`).
     """
 
-    solver: str = "SCS"
+    solver: str = "AUTO"
     eps_abs: float = 1e-8
     eps_rel: float = 1e-8
     max_iters: int = 200_000
@@ -51,8 +53,8 @@ class SolverOptions:
     tol: float = 1e-6
 
     def __post_init__(self) -> None:
-        if self.solver.upper() not in BACKENDS:
-            raise ValueError(f"solver={self.solver!r}, expected one of {sorted(BACKENDS)}")
+        if self.solver.upper() not in SOLVERS:
+            raise ValueError(f"solver={self.solver!r}, expected one of {list(SOLVERS)}")
         for name in ("eps_abs", "eps_rel", "tol"):
             v = getattr(self, name)
             if not (v > 0 and np.isfinite(v)):
@@ -213,12 +215,28 @@ def _error(name: str, exc: BaseException, elapsed: float) -> RawSolution:
                        nan, elapsed, 0.0, msg)
 
 
-BACKENDS = {"SCS": ScsBackend, "CLARABEL": ClarabelBackend}
+SOLVERS = ("AUTO", "SCS", "CLARABEL", "IPM")
+# the back-end a failed solve is retried with (SolverOptions.fallback)
+FALLBACK = {"SCS": "CLARABEL", "CLARABEL": "SCS", "IPM": "SCS"}
 
 
 def get_backend(name: str):
-    """The back-end class for ``name``; the error lists the known names."""
+    """The back-end class for ``name`` (not ``AUTO``); the error lists the known names."""
     key = name.upper()
-    if key not in BACKENDS:
-        raise ValueError(f"solver={name!r}, expected one of {sorted(BACKENDS)}")
-    return BACKENDS[key]
+    if key == "SCS":
+        return ScsBackend
+    if key == "CLARABEL":
+        return ClarabelBackend
+    if key == "IPM":
+        from .solver_ipm import IpmBackend
+        return IpmBackend
+    raise ValueError(f"solver={name!r}, expected one of {list(SOLVERS[1:])}")
+
+
+def resolve_solver(name: str, problem: ConicProblem | None = None) -> str:
+    """The concrete back-end for ``name``: ``AUTO`` becomes IPM when ``problem`` fits it."""
+    key = name.upper()
+    if key != "AUTO":
+        return key
+    from .solver_ipm import fits
+    return "IPM" if problem is not None and fits(problem) else "SCS"

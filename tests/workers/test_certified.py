@@ -29,7 +29,7 @@ def test_second_pass_runs_when_first_is_undecided():
     feasible, so nothing is certified; the Clarabel second pass certifies it separable."""
     P = ocb_process()
     W = white_noise_mixture(P.scenario, P.matrix, 1 / np.sqrt(2) - 1e-3)
-    first = SolverOptions(max_iters=5, fallback=False)
+    first = SolverOptions(solver="SCS", max_iters=5, fallback=False)
     out = certified_analyse(P.scenario, W, first, SolverOptions(solver="CLARABEL"))
     assert out.passes == 2 and out.certified and out.verdict == "separable"
     assert out.decomposition_delta <= 1e-6

@@ -21,7 +21,7 @@ def test_shortcut_agrees_with_sdp(rng):
         assert comb_order(s, W) == order
         fast, slow = analyse(s, W), analyse(s, W, force_solve=True)
         assert fast.bounds["random"].upper_from.solver == "shortcut"
-        assert slow.bounds["random"].upper_from.solver == "SCS"
+        assert slow.bounds["random"].upper_from.solver in ("IPM", "SCS")
         assert fast.verdict == slow.verdict == "separable"
         for kind in ("random", "generalized"):
             assert slow.robustness(kind) == pytest.approx(fast.robustness(kind), abs=1e-6)
