@@ -37,7 +37,10 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--method", default="auto",
                    choices=["auto", "exact", "bounds", "sufficient", "necessary", "fixed_orders"],
                    help="characterisation (auto: exact for N<=3, both bounds for N>=4)")
-    p.add_argument("--solver", default="SCS", choices=["SCS", "CLARABEL", "scs", "clarabel"])
+    p.add_argument("--solver", default="AUTO", type=str.upper,
+                   choices=["AUTO", "IPM", "SCS", "CLARABEL"],
+                   help="SDP back-end (AUTO: the batched interior point for small problems, "
+                        "else SCS)")
     p.add_argument("--eps", type=float, default=1e-8, help="solver tolerance (abs and rel)")
     p.add_argument("--max-iters", type=int, default=200_000)
     p.add_argument("--tol", type=float, default=1e-6,

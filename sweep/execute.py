@@ -11,6 +11,7 @@ same command resumes.
 from __future__ import annotations
 
 import contextlib
+import math
 import os
 import sys
 import time
@@ -134,6 +135,22 @@ def _run_serial(store: ResultFile, spec_json: str, tasks, bar: Progress) -> None
         bar.update(store.append(run_samples(spec_json, t)))
 
 
+MAX_AUTO_TASK = 32  # samples per task when the size is automatic: enough to batch the IPM
+TASKS_PER_WORKER = 8  # ... and never so few tasks that the last ones leave workers idle
+
+
+def auto_task_size(n_missing: int, run: RunSpec) -> int:
+    """Samples per task when ``run.samples_per_task`` is unset: as large as useful for the
+    batched solver (32) while leaving at least 8 tasks per worker for load balance."""
+    if run.cluster == "serial":
+        return MAX_AUTO_TASK
+    if run.cluster == "jobqueue" and run.jobqueue is not None:
+        workers = run.jobqueue.jobs * run.jobqueue.processes
+    else:
+        workers = run.workers or os.cpu_count() or 1
+    return max(1, min(MAX_AUTO_TASK, math.ceil(n_missing / (TASKS_PER_WORKER * workers))))
+
+
 def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
     """Compute every sample of ``spec`` missing from ``out`` on the cluster ``run``."""
     run = run or spec.run
@@ -142,7 +159,7 @@ def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
     with ResultFile(out, plan) as store:
         done = store.done_indices()
         missing = [i for i in range(plan.n_samples) if i not in done]
-        tasks = plan.tasks(missing, run.samples_per_task)
+        tasks = plan.tasks(missing, run.samples_per_task or auto_task_size(len(missing), run))
         bar = Progress(len(missing), run.progress)
         store.start_run(run.cluster)
         state = "interrupted"

@@ -49,8 +49,9 @@ class RunSpec(_Strict):
                                 "one per core)")
     address: str | None = Field(None, description="scheduler address, e.g. tcp://host:8786")
     jobqueue: JobqueueSpec | None = Field(None, description="batch-queue settings")
-    samples_per_task: int = Field(8, ge=1, description="samples per dask task (a compiled "
-                                  "problem is reused within a task)")
+    samples_per_task: int | None = Field(
+        None, ge=1, description="samples per dask task, solved as one batch with a compiled "
+        "problem (null = auto: at most 32, with at least 8 tasks per worker)")
     profile: str | None = Field(None, description="profile to apply from the profile file")
     progress: bool = Field(True, description="progress bar on stderr")
 

@@ -3,9 +3,11 @@
 ``run_samples(spec_json, indices)`` rebuilds the plan from the spec's JSON (cached per worker
 process, so files are read and problems compiled once), computes every sample and returns one
 dict per sample.  It never raises for a sample: an invalid operator is status ``invalid``, a
-failed solve ``failed``, any other exception ``error`` with its message.  No warm starts are
-used and every cold solve gets a fresh SCS workspace, so a sample's operator, seed, verdict and
-robustness values do not depend on which task or worker computed it.
+failed solve ``failed``, any other exception ``error`` with its message.  The robustness SDPs
+of a task's samples are solved as one batch when the back-end batches (the interior-point
+``IPM``); each sample's arithmetic in a batch is its own, no warm starts are used and every
+cold SCS solve gets a fresh workspace, so a sample's operator, seed, verdict and robustness
+values do not depend on which task or worker computed it.
 """
 
 from __future__ import annotations
@@ -20,8 +22,8 @@ import numpy as np
 
 from workers.games import get_game
 from workers.seesaw import seesaw
-from workers.certified import analyse_and_certify
-from workers.separability import analyse
+from workers.certified import analyse_and_certify_many
+from workers.separability import analyse_many
 from workers.solvers import SolverOptions
 from workers.validity import check_validity, hermitian_part
 
@@ -56,13 +58,30 @@ def blank(index: int, point: int, rep: int) -> dict[str, Any]:
     return row
 
 
-def _robustness(plan: Plan, W: np.ndarray, row: dict[str, Any]) -> None:
+def _options(plan: Plan) -> SolverOptions:
     comp = plan.spec.compute
-    opts = SolverOptions(solver=comp.solver, eps_abs=comp.eps, eps_rel=comp.eps,
+    return SolverOptions(solver=comp.solver, eps_abs=comp.eps, eps_rel=comp.eps,
                          max_iters=comp.max_iters, tol=comp.tol)
+
+
+def _robustness_many(plan: Plan, Ws: list[np.ndarray], rows: list[dict[str, Any]]) -> None:
+    """Robustness of several samples, the SDPs solved as one batch (see module doc)."""
+    comp = plan.spec.compute
+    opts = _options(plan)
     if comp.certify:
-        res, cv = analyse_and_certify(plan.scenario, W, tuple(comp.robustness), comp.method,
-                                      opts, comp.second_pass, comp.force_solve)
+        done = analyse_and_certify_many(plan.scenario, Ws, tuple(comp.robustness), comp.method,
+                                        opts, comp.second_pass, comp.force_solve)
+    else:
+        done = [(res, None) for res in analyse_many(plan.scenario, Ws, tuple(comp.robustness),
+                                                    comp.method, opts,
+                                                    force_solve=comp.force_solve)]
+    for W, row, (res, cv) in zip(Ws, rows, done):
+        _record(comp, W, row, res, cv)
+
+
+def _record(comp, W: np.ndarray, row: dict[str, Any], res, cv) -> None:
+    """Copy one sample's analysis (and certified verdict, if any) into its row."""
+    if cv is not None:
         row.update(verdict=cv.verdict, certified=cv.certified, cert_margin=cv.margin,
                    passes=cv.passes, margin=res.margin,
                    message=f"{cv.reason} | solver: {res.reason}")
@@ -70,8 +89,6 @@ def _robustness(plan: Plan, W: np.ndarray, row: dict[str, Any]) -> None:
             row["certificate"] = cv.certificate.to_arrays()
             row["cert_operator"] = W
     else:
-        res = analyse(plan.scenario, W, tuple(comp.robustness), comp.method, opts,
-                      force_solve=comp.force_solve)
         row.update(verdict=res.verdict, margin=res.margin, message=res.reason)
     solves = []
     for kind, b in res.bounds.items():
@@ -98,8 +115,9 @@ def _game(plan: Plan, index: int, W: np.ndarray, row: dict[str, Any]) -> None:
                                    max_iter=g.max_iter).value
 
 
-def compute_sample(plan: Plan, index: int) -> dict[str, Any]:
-    """All requested quantities of one sample (never raises)."""
+def _prepare(plan: Plan, index: int) -> tuple[dict[str, Any], np.ndarray | None]:
+    """The sample's row with its operator checked; the operator is None when the sample is
+    already finished (invalid, or an error while building it)."""
     point, rep = plan.locate(index)
     row = blank(index, point, rep)
     comp = plan.spec.compute
@@ -111,22 +129,55 @@ def compute_sample(plan: Plan, index: int) -> dict[str, Any]:
         row["min_eig"] = rep_v.min_eigenvalue
         if comp.validity and not rep_v.valid:
             row.update(status="invalid", valid=False, message="; ".join(rep_v.problems()))
-            return row
+            return row, None
         W = hermitian_part(W)  # float rounding leaves ~1e-17 asymmetry; exact checks need none
         if comp.store_operators:
             row["operator"] = W
-        if comp.robustness:
-            _robustness(plan, W, row)
-        if comp.game is not None:
-            _game(plan, index, W, row)
+        return row, W
     except Exception as exc:  # recorded as the sample's status, never aborts the sweep
-        row.update(status="error", message=f"{type(exc).__name__}: {exc}"[:300])
-    return row
+        _error(row, exc)
+        return row, None
+
+
+def _error(row: dict[str, Any], exc: Exception) -> None:
+    row.update(status="error", message=f"{type(exc).__name__}: {exc}"[:300])
+
+
+def compute_sample(plan: Plan, index: int) -> dict[str, Any]:
+    """All requested quantities of one sample (never raises)."""
+    return compute_samples(plan, [index])[0]
+
+
+def compute_samples(plan: Plan, indices: list[int]) -> list[dict[str, Any]]:
+    """All requested quantities of several samples (never raises for a sample).
+
+    The robustness SDPs of the samples are solved as one batch; if the batch raises, each
+    sample is redone alone so that the exception is recorded on the sample that caused it.
+    """
+    comp = plan.spec.compute
+    prepared = [_prepare(plan, int(i)) for i in indices]
+    live = [(row, W) for row, W in prepared if W is not None]
+    if comp.robustness and live:
+        try:
+            _robustness_many(plan, [W for _, W in live], [row for row, _ in live])
+        except Exception:  # noqa: BLE001 - find the culprit sample by sample
+            for row, W in live:
+                try:
+                    _robustness_many(plan, [W], [row])
+                except Exception as exc:  # recorded as the sample's status
+                    _error(row, exc)
+    if comp.game is not None:
+        for row, W in live:
+            if row["status"] == "error":
+                continue
+            try:
+                _game(plan, row["index"], W, row)
+            except Exception as exc:  # recorded as the sample's status
+                _error(row, exc)
+    return [row for row, _ in prepared]
 
 
 def run_samples(spec_json: str, indices: list[int]) -> list[dict[str, Any]]:
     """Compute the samples ``indices`` of the spec given as JSON (the dask task)."""
     plan = plan_from_json(spec_json)
-    return [compute_sample(plan, int(i)) for i in indices]
-
-
+    return compute_samples(plan, [int(i) for i in indices])

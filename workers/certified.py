@@ -16,7 +16,7 @@ from .certificates import (Certificate, VerificationReport, fingerprint, snap,
                            verify_certificate)
 from .robustness import RobustnessResult
 from .scenario import Scenario
-from .separability import QUANTITIES, SeparabilityResult, analyse
+from .separability import QUANTITIES, SeparabilityResult, analyse, analyse_many
 from .solvers import SolverOptions
 
 
@@ -173,14 +173,33 @@ def analyse_and_certify(
     Returns the analysis whose certificate is reported and the certified verdict (its
     ``passes`` field says whether the second pass was needed).
     """
-    res = analyse(scenario, W, quantities, method, options, keep_certificate=True,
-                  force_solve=force_solve)
-    cv = certify(scenario, W, res, options.tol)
-    second = None if cv.certified else second_pass_options(scenario, options, second_pass)
-    if second is None:
-        return res, cv
-    res2 = analyse(scenario, W, quantities, method, second, keep_certificate=True,
-                   force_solve=force_solve)
-    cv2 = certify(scenario, W, res2, second.tol)
-    reason = cv2.reason if cv2.certified else f"pass 1: {cv.reason}; pass 2: {cv2.reason}"
-    return res2, replace(cv2, reason=reason, passes=2, analysis=res2)
+    return analyse_and_certify_many(scenario, [W], quantities, method, options, second_pass,
+                                    force_solve)[0]
+
+
+def analyse_and_certify_many(
+    scenario: Scenario,
+    Ws,
+    quantities: tuple[str, ...],
+    method: str,
+    options: SolverOptions,
+    second_pass: str = "auto",
+    force_solve: bool = False,
+) -> list[tuple[SeparabilityResult, CertifiedVerdict]]:
+    """:func:`analyse_and_certify` for several processes: the first pass is one batch
+    (:func:`workers.separability.analyse_many`); the rare second pass is per process."""
+    first = analyse_many(scenario, Ws, quantities, method, options, keep_certificate=True,
+                         force_solve=force_solve)
+    out = []
+    for W, res in zip(Ws, first):
+        cv = certify(scenario, W, res, options.tol)
+        second = None if cv.certified else second_pass_options(scenario, options, second_pass)
+        if second is None:
+            out.append((res, cv))
+            continue
+        res2 = analyse(scenario, W, quantities, method, second, keep_certificate=True,
+                       force_solve=force_solve)
+        cv2 = certify(scenario, W, res2, second.tol)
+        reason = cv2.reason if cv2.certified else f"pass 1: {cv.reason}; pass 2: {cv2.reason}"
+        out.append((res2, replace(cv2, reason=reason, passes=2, analysis=res2)))
+    return out

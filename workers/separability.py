@@ -141,20 +141,41 @@ def analyse(
     force_solve
         Solve the SDPs even when W is recognised as a comb (:mod:`workers.shortcuts`).
     """
+    return analyse_many(scenario, [W], quantities, method, options, keep_certificate,
+                        force_solve)[0]
+
+
+def analyse_many(
+    scenario: Scenario,
+    Ws,
+    quantities: tuple[str, ...] = QUANTITIES,
+    method: str = "auto",
+    options: SolverOptions = SolverOptions(),
+    keep_certificate: bool = False,
+    force_solve: bool = False,
+) -> list[SeparabilityResult]:
+    """:func:`analyse` for several processes of one scenario, the SDPs solved as one batch
+    per (quantity, structure) where the back-end batches (the IPM); same results as
+    :func:`analyse` on each W."""
     bad = [q for q in quantities if q not in QUANTITIES]
     if bad or not quantities:
         raise ValueError(f"quantities={list(quantities)}, expected a non-empty subset of "
                          f"{list(QUANTITIES)}")
     methods = methods_for(scenario, method)
-    bounds = {}
-    known = None if force_solve else try_comb_shortcut(scenario, W, tuple(quantities), methods)
-    for kind in quantities:
-        if known is not None:
-            res = known[kind]
-        else:
-            res = {m: get_problem(scenario, kind, m, options).solve(
-                W, keep_certificate=keep_certificate) for m in methods}
-        bounds[kind] = _bounds(kind, res)
-    deciding = bounds["random"] if "random" in bounds else bounds[quantities[0]]
-    verdict, margin, reason = decide(deciding, options.tol)
-    return SeparabilityResult(verdict, margin, reason, methods, bounds)
+    known = [None if force_solve else try_comb_shortcut(scenario, W, tuple(quantities), methods)
+             for W in Ws]
+    todo = [i for i, k in enumerate(known) if k is None]
+    solved = {(kind, m): dict(zip(todo, get_problem(scenario, kind, m, options).solve_many(
+        [Ws[i] for i in todo], keep_certificate=keep_certificate)))
+        for kind in quantities for m in methods} if todo else {}
+    out = []
+    for i in range(len(Ws)):
+        bounds = {}
+        for kind in quantities:
+            res = known[i][kind] if known[i] is not None else {
+                m: solved[(kind, m)][i] for m in methods}
+            bounds[kind] = _bounds(kind, res)
+        deciding = bounds["random"] if "random" in bounds else bounds[quantities[0]]
+        verdict, margin, reason = decide(deciding, options.tol)
+        out.append(SeparabilityResult(verdict, margin, reason, methods, bounds))
+    return out

@@ -32,8 +32,9 @@ def test_grid_is_the_product_last_axis_fastest():
 
 
 def test_results_do_not_depend_on_task_size_and_any_sample_recomputes(tmp_path):
-    """Two runs with different samples per task store identical operators and verdicts, and
-    each stored operator equals the one Plan.operator(i) recomputes alone."""
+    """Two runs with different samples per task store identical operators, verdicts and
+    robustness values, and each stored operator equals the one Plan.operator(i) recomputes
+    alone."""
     outs = []
     for per_task in (1, 5):
         spec = parse_spec({**SPEC, "run": {**SPEC["run"], "samples_per_task": per_task}})
@@ -46,6 +47,9 @@ def test_results_do_not_depend_on_task_size_and_any_sample_recomputes(tmp_path):
     (s1, o1), (s5, o5) = outs
     assert np.array_equal(o1, o5)
     assert np.array_equal(s1["verdict"], s5["verdict"])
+    # the batched solver's answers are bit-identical too (per-sample arithmetic in a batch)
+    np.testing.assert_array_equal(s1["r_random"], s5["r_random"])
+    np.testing.assert_array_equal(s1["iterations"], s5["iterations"])
     assert np.array_equal(s1["seed"], s5["seed"])
     plan = Plan(parse_spec(SPEC))
     for i in (0, 7, 11):
