@@ -27,10 +27,22 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def read_certificate(g: h5py.Group) -> tuple[np.ndarray, Certificate]:
-    """The operator and the certificate stored in one ``certificates/<index>`` group."""
-    data = {"header": np.array(g.attrs["header"]), "margin": g["margin"][()]}
-    for key, ds in g["array"].items():
-        data[f"array/{key}"] = ds[()]
+    """The operator and the certificate stored in one ``certificates/<index>`` group.
+
+    Schema 3 (see :meth:`sweep.storage.ResultFile._store_certificates`): arrays are the
+    group's datasets besides ``operator``, scalars its attributes; schema 2 kept the arrays
+    in a subgroup ``array`` and ``margin`` as a dataset (still read).
+    """
+    if "array" in g:  # schema 2
+        data = {"header": np.array(g.attrs["header"]), "margin": g["margin"][()]}
+        data.update({f"array/{key}": ds[()] for key, ds in g["array"].items()})
+        return g["operator"][()], Certificate.from_arrays(data)
+    data = {key: np.array(value) for key, value in g.attrs.items()}
+    arrays = {key: np.array(value) for key, value in data.items()
+              if key not in ("header", "margin")}
+    data = {"header": data["header"], "margin": data["margin"],
+            **{f"array/{k}": v for k, v in arrays.items()}}
+    data.update({f"array/{key}": ds[()] for key, ds in g.items() if key != "operator"})
     return g["operator"][()], Certificate.from_arrays(data)
 
 

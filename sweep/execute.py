@@ -24,20 +24,30 @@ from .plan import Plan
 from .spec import Spec
 from .spec_run import RunSpec
 from .storage import ResultFile
-from .task import run_samples
+from .task import run_samples, warm_up
 
 ONE_THREAD = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
 
 
 @dataclass(frozen=True)
 class SweepOutcome:
-    """What a call to :func:`run_sweep` did."""
+    """What a call to :func:`run_sweep` did, with where the time went (seconds).
+
+    ``startup``: getting the cluster and client ready (0 in serial); ``compute``: from the
+    first task submitted to the last result stored; ``storage``: spent writing the HDF5
+    file; ``task_seconds``: the tasks' own wall time, summed over tasks (with one worker,
+    ``compute - task_seconds`` is the scheduling and storage overhead).
+    """
 
     path: str
     n_samples: int
     already_done: int
     computed: int
     elapsed: float
+    startup: float = 0.0
+    compute: float = 0.0
+    storage: float = 0.0
+    task_seconds: float = 0.0
 
 
 class Progress:
@@ -99,7 +109,10 @@ def open_client(run: RunSpec) -> Iterator:
         with client:
             yield client
         return
-    with dask.config.set({"distributed.nanny.pre-spawn-environ": ONE_THREAD}):
+    # workers hold their tasks (no saturation cap): the scheduler runs in this process and
+    # stalls while the driver writes HDF5, which must not leave a worker waiting for work
+    with dask.config.set({"distributed.nanny.pre-spawn-environ": ONE_THREAD,
+                          "distributed.scheduler.worker-saturation": float("inf")}):
         if run.cluster == "jobqueue":
             cluster = jobqueue_cluster(run)
         else:
@@ -118,21 +131,37 @@ def _submit_all(client, spec_json: str, tasks: list[list[int]]):
 
 def _run_dask(store: ResultFile, spec_json: str, tasks, run: RunSpec, bar: Progress) -> None:
     from distributed import as_completed
+    t0 = time.monotonic()
     with open_client(run) as client:
-        futures = _submit_all(client, spec_json, tasks)
-        try:
-            for fut in as_completed(futures):
-                rows = fut.result()
-                bar.update(store.append(rows))
-                fut.release()
-        except BaseException:
-            client.cancel(futures)
-            raise
+        client.run(warm_up, spec_json)  # imports and compiled problems, on every worker
+        store.run_entry["startup_s"] = round(time.monotonic() - t0, 3)
+        with _compute_phase(store):
+            futures = _submit_all(client, spec_json, tasks)
+            try:
+                for fut in as_completed(futures):
+                    rows = fut.result()
+                    bar.update(store.append(rows))
+                    fut.release()
+            except BaseException:
+                client.cancel(futures)
+                raise
 
 
 def _run_serial(store: ResultFile, spec_json: str, tasks, bar: Progress) -> None:
-    for t in tasks:
-        bar.update(store.append(run_samples(spec_json, t)))
+    with _compute_phase(store):
+        for t in tasks:
+            bar.update(store.append(run_samples(spec_json, t)))
+
+
+@contextlib.contextmanager
+def _compute_phase(store: ResultFile) -> Iterator[None]:
+    """Record in the run entry the seconds from the first task submitted to the last result
+    stored (``compute_s``; the cluster's start-up and shut-down are not in it)."""
+    t0 = time.monotonic()
+    try:
+        yield
+    finally:
+        store.run_entry["compute_s"] = round(time.monotonic() - t0, 3)
 
 
 MAX_AUTO_TASK = 32  # samples per task when the size is automatic: enough to batch the IPM
@@ -174,5 +203,7 @@ def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
         finally:
             bar.close()
             store.finish(state)
-        computed = store.run_entry["computed"]
-    return SweepOutcome(str(out), plan.n_samples, len(done), computed, time.monotonic() - t0)
+        e = store.run_entry
+    return SweepOutcome(str(out), plan.n_samples, len(done), e["computed"],
+                        time.monotonic() - t0, e.get("startup_s", 0.0), e.get("compute_s", 0.0),
+                        e["storage_s"], e["task_s"])

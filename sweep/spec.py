@@ -20,7 +20,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_valida
 from .errors import UserError
 from .spec_run import RunSpec
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 
 class Strict(BaseModel):

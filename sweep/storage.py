@@ -6,7 +6,9 @@ Layout (plain h5py reads everything):
   ``spec_json``, ``spec_hash`` (sha256 of the spec without ``run``), ``root_seed``,
   ``n_samples``, ``axes`` (JSON list), ``scenario_dims`` (JSON, P first, F last),
   ``versions`` (JSON: orderless, numpy, scipy, scs, clarabel, cvxpy, dask, h5py, python),
-  ``runs`` (JSON list: id, host, cluster, started, finished, state, computed), ``committed``
+  ``runs`` (JSON list: id, host, cluster, started, finished, state, computed, and seconds
+  spent: startup_s, compute_s, storage_s, task_s, see :class:`sweep.execute.SweepOutcome`),
+  ``committed``
   (rows that are complete; rows beyond it are discarded on reopen).
 * ``grid/points``: float array (n_points, n_axes), one row per grid point.
 * ``samples``: compound table, one row per computed sample in completion order (see
@@ -87,6 +89,7 @@ class ResultFile:
     def __init__(self, path: str | Path, plan: Plan) -> None:
         self.path, self.plan, self.spec = Path(path), plan, plan.spec
         self.f = self._open()
+        self._done = set(int(i) for i in self.f["samples"]["index"])
         self.run_entry: dict[str, Any] | None = None
 
     def _open(self) -> h5py.File:
@@ -150,12 +153,13 @@ class ResultFile:
         f.flush()
 
     def done_indices(self) -> set[int]:
-        return set(int(i) for i in self.f["samples"]["index"])
+        return set(self._done)
 
     def start_run(self, cluster: str) -> None:
         self.run_entry = {"id": uuid.uuid4().hex[:12], "host": socket.gethostname(),
                           "cluster": cluster, "started": now(),
-                          "finished": None, "state": "running", "computed": 0}
+                          "finished": None, "state": "running", "computed": 0,
+                          "storage_s": 0.0, "task_s": 0.0}
         self._save_runs()
 
     def _save_runs(self) -> None:
@@ -164,13 +168,20 @@ class ResultFile:
             runs[-1] = self.run_entry
         else:
             runs.append(self.run_entry)
-        self.f.attrs["runs"] = json.dumps(runs)
+        self.f.attrs["runs"] = json.dumps(runs, default=_rounded)
         self.f.flush()
 
     def append(self, rows: list[dict[str, Any]]) -> int:
         """Append the rows not already stored; flush; return how many were new."""
-        done = self.done_indices() if len(rows) else set()
-        rows = [r for r in rows if r["index"] not in done]
+        t0 = time.perf_counter()
+        n = self._append(rows)
+        if self.run_entry is not None:
+            self.run_entry["storage_s"] += time.perf_counter() - t0
+            self.run_entry["task_s"] += sum(float(r.get("task_seconds", 0.0)) for r in rows)
+        return n
+
+    def _append(self, rows: list[dict[str, Any]]) -> int:
+        rows = [r for r in rows if r["index"] not in self._done]
         if not rows:
             return 0
         seeds = [int(np.random.SeedSequence(self.spec.compute.seed, spawn_key=(r["index"],))
@@ -186,13 +197,17 @@ class ResultFile:
                         self.f[name][n0 + j] = r[key]
         self._store_certificates(rows)
         self.f.attrs["committed"] = n1
+        self._done.update(int(r["index"]) for r in rows)
         if self.run_entry is not None:
             self.run_entry["computed"] += len(rows)
         self.f.flush()
         return len(rows)
 
     def _store_certificates(self, rows: list[dict[str, Any]]) -> None:
-        """Certificates under ``certificates/<index>`` (arrays + the operator they certify).
+        """Certificates under ``certificates/<index>``: dataset ``operator`` (the W it
+        certifies), one dataset per certificate array, and the scalars (``header``,
+        ``margin``, 0-d arrays) as attributes, which keeps the HDF5 objects per sample few
+        (the driver writes them while the workers compute).
 
         Written before ``committed`` moves, so a group whose row is not committed is an
         orphan of a killed write; it is replaced when that sample is recomputed.
@@ -205,17 +220,19 @@ class ResultFile:
             if name in group:
                 del group[name]
             g = group.create_group(name)
-            g.create_dataset("operator", data=r["cert_operator"], compression="gzip")
+            g.create_dataset("operator", data=r["cert_operator"])
             for key, arr in r["certificate"].items():
-                arr = np.asarray(arr)
-                if arr.dtype.kind == "U":
-                    g.attrs[key] = str(arr.item())
+                arr, key = np.asarray(arr), key.removeprefix("array/")
+                if arr.ndim == 0:
+                    g.attrs[key] = str(arr.item()) if arr.dtype.kind == "U" else arr.item()
                 else:
-                    g.create_dataset(key, data=arr, compression="gzip" if arr.ndim else None)
+                    g.create_dataset(key, data=arr)
 
     def finish(self, state: str) -> None:
         if self.run_entry is not None:
             self.run_entry.update(finished=now(), state=state)
+            for key in ("storage_s", "task_s"):
+                self.run_entry[key] = round(self.run_entry[key], 3)
             self._save_runs()
 
     def close(self) -> None:
@@ -227,6 +244,11 @@ class ResultFile:
 
     def __exit__(self, *exc: object) -> None:
         self.close()
+
+
+def _rounded(value: Any) -> Any:
+    """JSON fallback for numpy scalars in the run entries."""
+    return round(float(value), 6)
 
 
 def read_results(path: str | Path) -> tuple[dict[str, Any], np.ndarray, np.ndarray]:

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import os
 import socket
+import time
 import warnings
 from functools import lru_cache
 from typing import Any
@@ -23,7 +24,8 @@ import numpy as np
 from workers.games import get_game
 from workers.seesaw import seesaw
 from workers.certified import analyse_and_certify_many
-from workers.separability import analyse_many
+from workers.robustness import get_problem
+from workers.separability import analyse_many, methods_for
 from workers.solvers import SolverOptions
 from workers.validity import check_validity, hermitian_part
 
@@ -177,7 +179,28 @@ def compute_samples(plan: Plan, indices: list[int]) -> list[dict[str, Any]]:
     return [row for row, _ in prepared]
 
 
-def run_samples(spec_json: str, indices: list[int]) -> list[dict[str, Any]]:
-    """Compute the samples ``indices`` of the spec given as JSON (the dask task)."""
+def warm_up(spec_json: str) -> str:
+    """Build the plan and compile its robustness problems in this process (cached), so the
+    first task does not pay for them; run on every worker while the cluster starts."""
     plan = plan_from_json(spec_json)
-    return compute_samples(plan, [int(i) for i in indices])
+    comp = plan.spec.compute
+    opts = _options(plan)
+    for kind in comp.robustness:
+        for method in methods_for(plan.scenario, comp.method):
+            get_problem(plan.scenario, kind, method, opts)
+    return _worker_name()
+
+
+def run_samples(spec_json: str, indices: list[int]) -> list[dict[str, Any]]:
+    """Compute the samples ``indices`` of the spec given as JSON (the dask task).
+
+    Every row carries ``task_seconds``: the task's wall time over its number of samples
+    (not stored per sample; the driver sums it into the run's provenance).
+    """
+    t0 = time.perf_counter()
+    plan = plan_from_json(spec_json)
+    rows = compute_samples(plan, [int(i) for i in indices])
+    share = (time.perf_counter() - t0) / max(len(rows), 1)
+    for row in rows:
+        row["task_seconds"] = share
+    return rows

@@ -26,7 +26,7 @@ def test_file_is_self_describing(tmp_path):
     run_sweep(spec, str(tmp_path / "a.h5"))
     with h5py.File(tmp_path / "a.h5", "r") as f:
         a = f.attrs
-        assert a["format"] == FORMAT and a["schema_version"] == SCHEMA_VERSION == 2
+        assert a["format"] == FORMAT and a["schema_version"] == SCHEMA_VERSION == 3
         assert a["spec_hash"] == spec.spec_hash() and a["root_seed"] == 0
         assert "ocb" in a["spec_yaml"] and json.loads(a["versions"])["numpy"] == np.__version__
         run = json.loads(a["runs"])[0]
