@@ -141,6 +141,10 @@ class ComputeSpec(Strict):
                          "families)")
     seed: int = Field(0, ge=0, description="root seed; sample i uses SeedSequence(seed, "
                       "spawn_key=(i,))")
+    warm_start: bool = Field(
+        False, description="warm-start SCS from the previous sample of the same task (pays "
+        "along grids of large problems; values then depend on the task grouping at the "
+        "solver's accuracy; the IPM never warm-starts)")
     force_solve: bool = Field(False, description="solve the SDPs even for operators recognised "
                               "as combs (PSD and inside one order's mask: separable, R = 0)")
     certify: bool = Field(True, description="certify every verdict in exact arithmetic "

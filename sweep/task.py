@@ -5,9 +5,10 @@ process, so files are read and problems compiled once), computes every sample an
 dict per sample.  It never raises for a sample: an invalid operator is status ``invalid``, a
 failed solve ``failed``, any other exception ``error`` with its message.  The robustness SDPs
 of a task's samples are solved as one batch when the back-end batches (the interior-point
-``IPM``); each sample's arithmetic in a batch is its own, no warm starts are used and every
-cold SCS solve gets a fresh workspace, so a sample's operator, seed, verdict and robustness
-values do not depend on which task or worker computed it.
+``IPM``); each sample's arithmetic in a batch is its own and every cold SCS solve gets a
+fresh workspace, so a sample's operator, seed, verdict and robustness values do not depend on
+which task or worker computed it (unless ``compute.warm_start`` chains SCS solves within a
+task, which trades that for speed along grids).
 """
 
 from __future__ import annotations
@@ -72,11 +73,12 @@ def _robustness_many(plan: Plan, Ws: list[np.ndarray], rows: list[dict[str, Any]
     opts = _options(plan)
     if comp.certify:
         done = analyse_and_certify_many(plan.scenario, Ws, tuple(comp.robustness), comp.method,
-                                        opts, comp.second_pass, comp.force_solve)
+                                        opts, comp.second_pass, comp.force_solve,
+                                        comp.warm_start)
     else:
-        done = [(res, None) for res in analyse_many(plan.scenario, Ws, tuple(comp.robustness),
-                                                    comp.method, opts,
-                                                    force_solve=comp.force_solve)]
+        done = [(res, None) for res in analyse_many(
+            plan.scenario, Ws, tuple(comp.robustness), comp.method, opts,
+            force_solve=comp.force_solve, warm_start=comp.warm_start)]
     for W, row, (res, cv) in zip(Ws, rows, done):
         _record(comp, W, row, res, cv)
 

@@ -185,11 +185,13 @@ def analyse_and_certify_many(
     options: SolverOptions,
     second_pass: str = "auto",
     force_solve: bool = False,
+    warm_start: bool = False,
 ) -> list[tuple[SeparabilityResult, CertifiedVerdict]]:
     """:func:`analyse_and_certify` for several processes: the first pass is one batch
-    (:func:`workers.separability.analyse_many`); the rare second pass is per process."""
+    (:func:`workers.separability.analyse_many`, optionally warm-started along ``Ws``); the
+    rare second pass is per process."""
     first = analyse_many(scenario, Ws, quantities, method, options, keep_certificate=True,
-                         force_solve=force_solve)
+                         force_solve=force_solve, warm_start=warm_start)
     out = []
     for W, res in zip(Ws, first):
         cv = certify(scenario, W, res, options.tol)

@@ -110,9 +110,21 @@ class RobustnessProblem:
         raw = self.backend.solve(self.problem.b(w), warm)
         return self._finish(W, raw, w, keep_certificate)
 
-    def solve_many(self, Ws, keep_certificate: bool = False) -> list[RobustnessResult]:
+    def solve_many(self, Ws, keep_certificate: bool = False, warm_start: bool = False
+                   ) -> list[RobustnessResult]:
         """Solve for every W of ``Ws``; one batched call when the back-end has one (IPM),
-        so the per-iteration work is shared by the batch."""
+        so the per-iteration work is shared by the batch.
+
+        ``warm_start`` (warm-startable back-ends, i.e. SCS): each solve starts from the
+        previous one's solution, which pays along a grid of nearby processes; the answers
+        then depend on the order of ``Ws`` at the solver's accuracy.
+        """
+        if warm_start and self.backend.warm_startable:
+            out, prev = [], None
+            for W in Ws:
+                prev = self.solve(W, warm_start=prev, keep_certificate=keep_certificate)
+                out.append(prev)
+            return out
         ws = [self.coefficients(W) for W in Ws]
         if not ws:
             return []

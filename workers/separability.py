@@ -153,10 +153,12 @@ def analyse_many(
     options: SolverOptions = SolverOptions(),
     keep_certificate: bool = False,
     force_solve: bool = False,
+    warm_start: bool = False,
 ) -> list[SeparabilityResult]:
     """:func:`analyse` for several processes of one scenario, the SDPs solved as one batch
     per (quantity, structure) where the back-end batches (the IPM); same results as
-    :func:`analyse` on each W."""
+    :func:`analyse` on each W.  ``warm_start`` chains warm-started SCS solves in the order
+    of ``Ws`` instead (:meth:`workers.robustness.RobustnessProblem.solve_many`)."""
     bad = [q for q in quantities if q not in QUANTITIES]
     if bad or not quantities:
         raise ValueError(f"quantities={list(quantities)}, expected a non-empty subset of "
@@ -166,7 +168,7 @@ def analyse_many(
              for W in Ws]
     todo = [i for i, k in enumerate(known) if k is None]
     solved = {(kind, m): dict(zip(todo, get_problem(scenario, kind, m, options).solve_many(
-        [Ws[i] for i in todo], keep_certificate=keep_certificate)))
+        [Ws[i] for i in todo], keep_certificate=keep_certificate, warm_start=warm_start)))
         for kind in quantities for m in methods} if todo else {}
     out = []
     for i in range(len(Ws)):

@@ -52,3 +52,20 @@ def test_auto_task_size_batches_and_balances():
     assert auto_task_size(200, RunSpec(workers=2)) == 13
     assert auto_task_size(5, RunSpec(workers=4)) == 1
     assert auto_task_size(200, RunSpec(cluster="serial")) == 32
+
+
+def test_warm_started_grid_matches_cold():
+    """compute.warm_start chains SCS solves along a task's grid points: same certified
+    verdicts and robustness within the solver's accuracy as cold solves (OCB white-noise
+    grid; R_r = max(0, sqrt2 p - 1), MATH.md sec. 5)."""
+    base = {"family": {"kind": "named", "name": "ocb"},
+            "grid": [{"param": "weight", "start": 0.5, "stop": 1.0, "num": 11}],
+            "compute": {"solver": "SCS", "eps": 1e-9},
+            "run": {"cluster": "serial", "progress": False}}
+    cold = compute_samples(Plan(parse_spec(base)), list(range(11)))
+    warm_spec = parse_spec({**base, "compute": {**base["compute"], "warm_start": True}})
+    warm = compute_samples(Plan(warm_spec), list(range(11)))
+    for c, w, p in zip(cold, warm, np.linspace(0.5, 1.0, 11)):
+        assert w["certified"] and w["verdict"] == c["verdict"]
+        assert abs(w["r_random"] - max(0.0, np.sqrt(2) * p - 1)) < 1e-5
+    assert sum(r["iterations"] for r in warm) < sum(r["iterations"] for r in cold)
