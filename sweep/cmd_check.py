@@ -38,9 +38,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    choices=["auto", "exact", "bounds", "sufficient", "necessary", "fixed_orders"],
                    help="characterisation (auto: exact for N<=3, both bounds for N>=4)")
     p.add_argument("--solver", default="AUTO", type=str.upper,
-                   choices=["AUTO", "IPM", "SCS", "CLARABEL"],
+                   choices=["AUTO", "IPM", "SCS", "CLARABEL", "ADMM"],
                    help="SDP back-end (AUTO: the batched interior point for small problems, "
-                        "else SCS)")
+                        "the matrix-free ADMM for very large ones, else SCS)")
     p.add_argument("--eps", type=float, default=1e-8, help="solver tolerance (abs and rel)")
     p.add_argument("--max-iters", type=int, default=200_000)
     p.add_argument("--tol", type=float, default=1e-6,

@@ -131,9 +131,11 @@ class ComputeSpec(Strict):
         "the random one if present); empty = no verdict")
     method: Literal["auto", "exact", "bounds", "sufficient", "necessary", "fixed_orders"] = Field(
         "auto", description="separability characterisation (auto: exact N<=3, bounds N>=4)")
-    solver: Literal["AUTO", "IPM", "SCS", "CLARABEL"] = Field(
+    solver: Literal["AUTO", "IPM", "SCS", "CLARABEL", "ADMM"] = Field(
         "AUTO", description="SDP back-end: AUTO (the built-in batched interior point IPM for "
-        "small problems, e.g. bipartite qubits; SCS otherwise), IPM, SCS or CLARABEL")
+        "small problems, e.g. bipartite qubits; the matrix-free ADMM when the conic matrix "
+        "would not fit in memory, e.g. four qubit parties; SCS otherwise), IPM, SCS, "
+        "CLARABEL or ADMM (random robustness only)")
     eps: float = Field(1e-6, gt=0, description="solver eps_abs = eps_rel")
     max_iters: int = Field(200_000, ge=1, description="solver iteration cap")
     tol: float = Field(1e-6, gt=0, description="decision threshold on the robustness")

@@ -37,7 +37,7 @@ import numpy as np
 
 from .errors import UserError
 from .plan import Plan
-from .spec import SCHEMA_VERSION, Spec
+from .spec import SCHEMA_VERSION
 
 FORMAT = "orderless-sweep"
 S = "S24"

@@ -98,6 +98,34 @@ def to_coefficients(W: np.ndarray, dims: Sequence[int]) -> np.ndarray:
     return np.ascontiguousarray(c.real.reshape(-1))
 
 
+def to_coefficients_stack(Ws: np.ndarray, dims: Sequence[int]) -> np.ndarray:
+    """:func:`to_coefficients` of every matrix of a stack (k, D, D): shape (k, D^2)."""
+    dims = tuple(int(d) for d in dims)
+    k, n = Ws.shape[0], len(dims)
+    T = Ws.astype(complex, copy=False).reshape((k,) + dims + dims)
+    order = [0] + [1 + ax for j in range(n) for ax in (j, n + j)]
+    T = T.transpose(order).reshape([k] + [d * d for d in dims])
+    mats = [local_basis(d).transpose(0, 2, 1).reshape(d * d, d * d) for d in dims]
+    for j, M in enumerate(mats):
+        if M.shape != (1, 1):
+            T = np.moveaxis(np.tensordot(M, T, axes=([1], [j + 1])), 0, j + 1)
+    return np.ascontiguousarray(T.real.reshape(k, -1))
+
+
+def from_coefficients_stack(cs: np.ndarray, dims: Sequence[int]) -> np.ndarray:
+    """:func:`from_coefficients` of every row of ``cs`` (k, D^2): shape (k, D, D)."""
+    dims = tuple(int(d) for d in dims)
+    k, n, D = cs.shape[0], len(dims), int(np.prod(dims))
+    T = np.asarray(cs, dtype=float).reshape([k] + [d * d for d in dims]).astype(complex)
+    for j, d in enumerate(dims):
+        if d > 1:
+            M = local_basis(d).reshape(d * d, d * d).T
+            T = np.moveaxis(np.tensordot(M, T, axes=([1], [j + 1])), 0, j + 1)
+    T = T.reshape([k] + [x for d in dims for x in (d, d)])
+    order = [0] + [1 + 2 * j for j in range(n)] + [2 + 2 * j for j in range(n)]
+    return T.transpose(order).reshape(k, D, D) / D
+
+
 def from_coefficients(c: np.ndarray, dims: Sequence[int]) -> np.ndarray:
     """Inverse of :func:`to_coefficients`: ``W = (1/D) sum_alpha c_alpha sigma_alpha``."""
     dims = tuple(int(d) for d in dims)

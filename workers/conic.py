@@ -23,13 +23,13 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from .basis import pattern_codes, to_coefficients
+from .basis import to_coefficients
 from .cone_vectors import basis_to_cone, cone_size
-from .leaf_spaces import reduced_dims, selection, used_bits
+from .layout import Layout, build_layout
+from .leaf_spaces import selection
 from .masks import valid_mask
 from .scenario import Scenario
-from .structures import (CausalStructure, build_structure, leaf_classes, merged_structure,
-                         pattern_systems, sparse_null_basis)
+from .structures import CausalStructure
 from .validity import white_noise
 
 KINDS = ("random", "generalized")
@@ -111,8 +111,7 @@ class ConicProblem:
         return out
 
 
-def _null_parametrisation(codes: np.ndarray, systems: dict, sparse: bool = True
-                          ) -> tuple[list, int]:
+def _null_parametrisation(codes: np.ndarray, layout: Layout) -> tuple[list, int]:
     """Assign z indices: per basis element, (element indices, first z index, null matrix).
 
     Patterns outside the span (target coefficient forced to 0) keep their null space too: the
@@ -120,12 +119,11 @@ def _null_parametrisation(codes: np.ndarray, systems: dict, sparse: bool = True
     that condition (i) forbids only for the sum W_(k)).
     """
     blocks, n_z = [], 0
-    for p, sysm in systems.items():
-        q = sysm.null.shape[1]
+    for p, null in layout.nulls.items():
+        q = null.shape[1]
         if q == 0:
             continue
         idx = np.nonzero(codes == p)[0]
-        null = sparse_null_basis(sysm.null) if sparse else sysm.null
         blocks.append((idx, n_z, null))
         n_z += len(idx) * q
     return blocks, n_z
@@ -170,22 +168,12 @@ def compile_problem(
     """
     if kind not in KINDS:
         raise ValueError(f"kind={kind!r}, expected one of {list(KINDS)}")
-    full = build_structure(scenario, method)
+    layout = build_layout(scenario, method, merge_leaves, reduce_leaves, sparse_null)
     dims = scenario.subsystem_dims
     D = scenario.dim
-    codes = pattern_codes(dims)
-    patterns = np.unique(codes)
-    classes = leaf_classes(full, patterns) if merge_leaves else tuple(range(full.n_leaves))
-    structure = merged_structure(full, classes)
-    systems = pattern_systems(structure, patterns)
-    m = structure.n_leaves
-    P = np.zeros((m, D * D))
-    spanned = np.zeros(D * D, dtype=bool)
-    for p, sysm in systems.items():
-        sel = codes == p
-        P[:, sel] = sysm.particular[:, None]
-        spanned[sel] = sysm.spanned
-    blocks, n_z = _null_parametrisation(codes, systems, sparse_null)
+    codes = layout.codes
+    P, spanned, m = layout.particular, layout.spanned, layout.n_blocks
+    blocks, n_z = _null_parametrisation(codes, layout)
     zmaps = _leaf_z_maps(blocks, m, D * D, n_z)
     if kind == "random":
         noise = to_coefficients(white_noise(scenario), dims)
@@ -199,8 +187,7 @@ def compile_problem(
         c_extra[omega_index == 0] = 1.0 / scenario.d_out_total
     spaces, maps, leaf_rows, b_blocks = [], [], [], []
     for j in range(m):
-        support = (P[j] != 0) | (np.diff(zmaps[j].tocsr().indptr) > 0)
-        small = reduced_dims(dims, used_bits(codes, support)) if reduce_leaves else dims
+        small = layout.spaces[j]
         to_block = basis_to_cone(small, fmt) @ selection(dims, small)  # vec(sigma'_a) per a
         spaces.append(small)
         maps.append(to_block.tocsr())
@@ -217,6 +204,6 @@ def compile_problem(
     c = np.concatenate([c_extra, np.zeros(n_z)])
     cone_dims = tuple(int(np.prod(s)) for s in spaces)
     return ConicProblem(
-        scenario, full, kind, fmt, A, c, b_map, cone_dims, P, spanned,
-        omega_index, n_z, classes, tuple(spaces), tuple(maps),
+        scenario, layout.structure, kind, fmt, A, c, b_map, cone_dims, P, spanned,
+        omega_index, n_z, layout.classes, tuple(spaces), tuple(maps),
     )

@@ -16,7 +16,9 @@ import numpy as np
 from .basis import from_coefficients, to_coefficients
 from .cone_vectors import cone_to_matrix
 from .conic import ConicProblem, compile_problem
+from .layout import build_layout
 from .leaf_spaces import embed_identity
+from .solver_admm import AdmmBackend, needs_admm
 from .scenario import Scenario
 from .solvers import FALLBACK, RawSolution, SolverOptions, get_backend, resolve_solver
 from .validity import check_shape
@@ -80,8 +82,15 @@ class RobustnessProblem:
         options: SolverOptions = SolverOptions(),
     ) -> None:
         self.scenario, self.kind, self.method = scenario, kind, method
-        fmt = "upper_real" if options.solver.upper() == "CLARABEL" else "scs_complex"
-        self.problem: ConicProblem = compile_problem(scenario, method, kind, fmt)
+        self.layout = build_layout(scenario, method)
+        self.problem: ConicProblem | None = None
+        wanted = options.solver.upper()
+        if wanted == "ADMM" or (wanted == "AUTO" and needs_admm(self.layout, kind)):
+            self.options = replace(options, solver="ADMM")  # no conic matrix at all
+            self.backend = AdmmBackend(self.layout, kind, self.options)
+            return
+        fmt = "upper_real" if wanted == "CLARABEL" else "scs_complex"
+        self.problem = compile_problem(scenario, method, kind, fmt)
         solver = resolve_solver(options.solver, self.problem)
         self.options = replace(options, solver=solver)
         self.backend = get_backend(solver)(self.problem, self.options)
@@ -90,7 +99,7 @@ class RobustnessProblem:
         """Coefficient vector of W; raises if W leaves the span of the causal structure."""
         W = check_shape(self.scenario, W)
         w = to_coefficients(W, self.scenario.subsystem_dims)
-        outside = np.linalg.norm(w[~self.problem.spanned]) / max(np.linalg.norm(w), 1e-300)
+        outside = np.linalg.norm(w[~self.layout.spanned]) / max(np.linalg.norm(w), 1e-300)
         if outside > 1e-7:
             raise ValueError(
                 f"operator is not in the valid subspace of this scenario (relative residual "
@@ -106,6 +115,8 @@ class RobustnessProblem:
     ) -> RobustnessResult:
         """Solve for W; a failed solve is retried once with the other back-end if enabled."""
         w = self.coefficients(W)
+        if self.problem is None:
+            return self._admm_result(self.backend.solve_w(w), w, keep_certificate)
         warm = warm_start.raw if warm_start is not None and self.backend.warm_startable else None
         raw = self.backend.solve(self.problem.b(w), warm)
         return self._finish(W, raw, w, keep_certificate)
@@ -119,7 +130,7 @@ class RobustnessProblem:
         previous one's solution, which pays along a grid of nearby processes; the answers
         then depend on the order of ``Ws`` at the solver's accuracy.
         """
-        if warm_start and self.backend.warm_startable:
+        if self.problem is None or (warm_start and self.backend.warm_startable):
             out, prev = [], None
             for W in Ws:
                 prev = self.solve(W, warm_start=prev, keep_certificate=keep_certificate)
@@ -136,7 +147,7 @@ class RobustnessProblem:
     def _finish(self, W, raw: RawSolution, w: np.ndarray, keep: bool) -> RobustnessResult:
         """The result of a raw solve, retried once with the fallback back-end if it failed."""
         result = self._result(raw, w, keep)
-        if result.status in RETRY and self.options.fallback:
+        if result.status in RETRY and self.options.fallback and self.options.solver in FALLBACK:
             # the other back-end keeps the tolerances but its own default iteration cap
             alt_opts = replace(self.options, solver=FALLBACK[self.options.solver],
                                fallback=False, max_iters=SolverOptions().max_iters)
@@ -163,6 +174,22 @@ class RobustnessProblem:
             raw.gap, raw.solve_time, raw.setup_time, wval, witness, leaves, duals, omega,
             raw.message, "", raw,
         )
+
+    def _admm_result(self, sol, w: np.ndarray, keep: bool) -> RobustnessResult:
+        """The result of a matrix-free solve (:mod:`workers.solver_admm`)."""
+        nan = float("nan")
+        s_coef = self.backend.witness_coefficients(sol)
+        witness = from_coefficients(s_coef, self.scenario.subsystem_dims)
+        leaves, duals = self.backend.full_blocks(sol) if keep else (None, None)
+        status = self.backend.status(sol)
+        return RobustnessResult(
+            self.kind, self.method, max(sol.pobj, 0.0), sol.dobj, sol.pobj, "ADMM", status,
+            "converged" if sol.converged else status, sol.iterations, sol.res_pri,
+            sol.res_dual, sol.gap, sol.solve_time, self.backend.setup_time,
+            float(s_coef @ w / self.scenario.dim), witness, leaves, duals, None, "", "", None,
+        ) if np.isfinite(sol.pobj) else RobustnessResult(
+            self.kind, self.method, nan, nan, nan, "ADMM", "failed", "nan iterate",
+            sol.iterations, nan, nan, nan, sol.solve_time, 0.0, nan)
 
     def _witness_coefficients(self, y: np.ndarray, keep: bool):
         """s_alpha = sum_j P_{j alpha} Tr(sigma_alpha Y_j): the witness read from the duals."""

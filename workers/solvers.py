@@ -30,7 +30,9 @@ class SolverOptions:
     solver
         ``"AUTO"`` (default: the built-in batched interior point ``"IPM"`` when the problem
         is small enough for it, see :func:`workers.solver_ipm.fits`, else ``"SCS"``),
-        ``"SCS"`` (first-order), ``"CLARABEL"`` (interior point, real embedding) or ``"IPM"``.
+        ``"SCS"`` (first-order), ``"CLARABEL"`` (interior point, real embedding), ``"IPM"``,
+        or ``"ADMM"`` (matrix-free, random robustness only; ``AUTO`` takes it when the conic
+        matrix would not fit in memory, see :mod:`workers.solver_admm`).
     eps_abs, eps_rel
         SCS's absolute/relative tolerances; Clarabel's ``tol_gap_abs/rel`` and ``tol_feas``.
     max_iters
@@ -224,7 +226,7 @@ def _error(name: str, exc: BaseException, elapsed: float) -> RawSolution:
                        nan, elapsed, 0.0, msg)
 
 
-SOLVERS = ("AUTO", "SCS", "CLARABEL", "IPM")
+SOLVERS = ("AUTO", "SCS", "CLARABEL", "IPM", "ADMM")
 # the back-end a failed solve is retried with (SolverOptions.fallback)
 FALLBACK = {"SCS": "CLARABEL", "CLARABEL": "SCS", "IPM": "SCS"}
 
@@ -239,7 +241,8 @@ def get_backend(name: str):
     if key == "IPM":
         from .solver_ipm import IpmBackend
         return IpmBackend
-    raise ValueError(f"solver={name!r}, expected one of {list(SOLVERS[1:])}")
+    raise ValueError(f"solver={name!r}, expected one of {list(SOLVERS[1:4])} (ADMM is not a "
+                     "conic back-end: RobustnessProblem builds it from the layout)")
 
 
 def resolve_solver(name: str, problem: ConicProblem | None = None) -> str:
