@@ -23,7 +23,7 @@ from .conic import ConicProblem
 from .ipm import SdpData, solve_batch
 from .solvers import RawSolution, SolverOptions
 
-AUTO_VARIABLES = 100
+AUTO_VARIABLES = 128
 AUTO_BLOCK = 32
 MAX_VARIABLES = 1000
 MAX_BLOCK = 64

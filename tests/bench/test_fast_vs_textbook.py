@@ -44,6 +44,17 @@ def test_bipartite_qubits_agree(kind):
     assert max(values) > 1e-3  # the sample includes nonseparable processes
 
 
+def test_batched_fast_path_agrees():
+    """The benchmark's fast path proper: one batched IPM call for several processes
+    (bench.run._compare) gives the textbook values too."""
+    s = Scenario.from_dims([2, 2, 2, 2])
+    Ws = _samples(s, 13, 5, u=1.0)
+    prob = get_problem(s, "random", "exact", SolverOptions(eps_abs=1e-8, eps_rel=1e-8))
+    assert prob.options.solver == "IPM"
+    for W, r in zip(Ws, prob.solve_many(Ws)):
+        assert r.value == pytest.approx(textbook_random_robustness(W, (2, 2, 2, 2), "SCS",
+                                                                   1e-8).value, abs=TOL)
+
 
 @pytest.mark.slow
 def test_tripartite_dynamical_agree():

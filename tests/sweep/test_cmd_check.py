@@ -35,7 +35,7 @@ def test_check_json_keys(ocb_file, capsys):
     assert d["witness_value"] == pytest.approx(1 - np.sqrt(2), abs=1e-6)
     # AUTO picks the batched interior point for bipartite qubits (workers.solver_ipm)
     assert d["solver"] == "IPM" and d["status"] == "optimal"
-    assert {s["solver"] for s in d["solves"]} == {"IPM", "SCS"}  # R_g: 104 variables -> SCS
+    assert {s["solver"] for s in d["solves"]} == {"IPM"}  # R_r: 17 variables, R_g: 104
     assert d["certified"] is True and d["certificate_kind"] == "witness"
     assert 0 < d["certificate_margin"] <= np.sqrt(2) - 1 + 1e-9
     assert d["certificate_margin"] == pytest.approx(np.sqrt(2) - 1, abs=1e-6)

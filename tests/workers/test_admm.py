@@ -67,7 +67,7 @@ def test_auto_takes_admm_only_above_the_size_limit(monkeypatch):
     assert solver_admm.needs_admm(build_layout(s, "exact"), "random")
     assert not solver_admm.needs_admm(build_layout(s, "exact"), "generalized")
     assert RobustnessProblem(s, "random", "exact").options.solver == "ADMM"
-    assert RobustnessProblem(s, "generalized", "exact").options.solver == "SCS"
+    assert RobustnessProblem(s, "generalized", "exact").options.solver == "IPM"  # conic
 
 
 def test_generalized_is_refused():

@@ -91,8 +91,9 @@ def test_breakdown_is_a_status_and_spares_the_batch(rng):
 
 
 def test_auto_takes_ipm_only_where_it_fits():
-    """AUTO resolves to IPM for bipartite qubits and to SCS for tripartite qubits, whose
-    dense Schur complement (about 3000 variables) the IPM refuses."""
+    """AUTO resolves to IPM for bipartite qubits (both robustness measures) and to SCS for
+    tripartite qubits, whose dense Schur complement (about 3000 variables) the IPM
+    refuses."""
     small = get_problem(Scenario.from_dims([2] * 4), "random", "exact", SolverOptions())
     assert small.options.solver == "IPM" and fits(small.problem)
     big = RobustnessProblem(Scenario.from_dims([2] * 6), "random", "exact", SolverOptions())
@@ -100,4 +101,7 @@ def test_auto_takes_ipm_only_where_it_fits():
     with pytest.raises(ValueError, match="solver='IPM' takes problems with at most"):
         RobustnessProblem(Scenario.from_dims([2] * 6), "random", "exact", IPM)
     gen = get_problem(Scenario.from_dims([2] * 4), "generalized", "exact", SolverOptions())
-    assert gen.options.solver == "SCS" and fits(gen.problem, auto=False)
+    assert gen.options.solver == "IPM"  # 104 variables, blocks 8, 8, 16
+    qutrit = get_problem(Scenario.from_dims([2, 2, 3, 2]), "generalized", "exact",
+                         SolverOptions())
+    assert qutrit.options.solver == "SCS" and fits(qutrit.problem, auto=False)  # 249
