@@ -35,10 +35,12 @@ def test_ocb_random_robustness_and_certificate():
     pytest.param([2, 2, 2, 1, 2, 1, 2, 1], "necessary", marks=pytest.mark.slow),
     pytest.param([2, 2, 2, 1, 2, 1, 2, 1], "sufficient", marks=pytest.mark.slow)])
 def test_agrees_with_scs(dims, method, rng):
-    """Same random robustness as SCS on the compiled conic problem (seeded processes)."""
+    """Same random robustness as SCS on the compiled conic problem (seeded processes; both
+    at eps 1e-7, where SCS still converges in seconds on the four-party problems)."""
     s = Scenario.from_dims(dims)
     admm = RobustnessProblem(s, "random", method, ADMM)
-    scs = RobustnessProblem(s, "random", method, SolverOptions(solver="SCS"))
+    scs = RobustnessProblem(s, "random", method,
+                            SolverOptions(solver="SCS", eps_abs=1e-7, eps_rel=1e-7))
     for _ in range(2):
         W = random_valid_process(s, rng)
         a, b = admm.solve(W), scs.solve(W)
