@@ -153,6 +153,10 @@ class RobustnessProblem:
                                fallback=False, max_iters=SolverOptions().max_iters)
             alt = get_problem(self.scenario, self.kind, self.method, alt_opts)
             second = alt.solve(W, keep_certificate=keep)
+            if second.status in FAILED and result.status not in FAILED:
+                # an unfinished iterate (iteration or time limit) says more than a failure
+                note = f"fallback {second.solver} {second.status}: {second.message}"
+                return replace(result, message="; ".join(m for m in (result.message, note) if m))
             return replace(second, fallback_from=f"{result.solver}:{result.status}")
         return result
 

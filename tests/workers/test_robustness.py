@@ -148,3 +148,23 @@ def test_solver_failure_is_a_status_with_fallback():
                               SolverOptions(solver="CLARABEL", max_iters=1)).solve(p.matrix)
     assert again.fallback_from == "CLARABEL:iteration_limit" and again.solver == "SCS"
     assert again.value == pytest.approx(3 - 2 * SQ2, abs=1e-6)
+
+
+def test_clarabel_refuses_blocks_that_would_not_fit(monkeypatch):
+    """Clarabel's dense PSD scalings of the quantum switch's two 256 x 256 blocks need
+    ~276 GB: a failed allocation there aborts the process, so the back-end reports an error
+    status instead, and with SCS's capped iterate in hand the fallback's failure does not
+    replace it."""
+    import workers.solvers as solvers
+
+    assert solvers.clarabel_bytes((256, 256)) > 2.5e11
+    assert solvers.clarabel_bytes((8, 8)) == 2 * 2 * 8 * (8 * 17) ** 2
+    monkeypatch.setattr(solvers, "available_bytes", lambda: 1000)
+    p = ocb_process()
+    r = RobustnessProblem(p.scenario, "random", "exact",
+                          SolverOptions(solver="CLARABEL", fallback=False)).solve(p.matrix)
+    assert r.status == "error" and "Clarabel needs" in r.message
+    capped = RobustnessProblem(p.scenario, "random", "exact",
+                               SolverOptions(solver="SCS", max_iters=3)).solve(p.matrix)
+    assert capped.status == "iteration_limit" and capped.solver == "SCS"
+    assert "fallback CLARABEL error" in capped.message
