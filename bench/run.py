@@ -241,7 +241,7 @@ def _machine_ceiling(spec_json: str, n: int) -> float:
     return sum(alone) / max(together)
 
 
-def sweep_scaling(n: int, repeats: int = 5) -> Row:
+def sweep_scaling(n: int, repeats: int = 11) -> Row:
     """A bipartite sweep of ``n`` samples (random and generalised robustness, certified):
     2 workers against 1 (fast = 2 workers), compared on the compute phase (first task
     submitted to last result stored; the cluster's start-up and shut-down are reported
@@ -281,7 +281,7 @@ def sweep_scaling(n: int, repeats: int = 5) -> Row:
 
 
 TARGETS: dict[str, Callable[[bool], Row]] = {
-    "sweep-scaling": lambda q: sweep_scaling(60 if q else 200),
+    "sweep-scaling": lambda q: sweep_scaling(60, 3) if q else sweep_scaling(200),
     "bipartite-random": lambda q: bipartite("random", 16 if q else 32),
     "bipartite-generalized": lambda q: bipartite("generalized", 5 if q else 15),
     "tripartite-small": lambda q: tripartite_small(3 if q else 6),

@@ -31,6 +31,20 @@ from .task import run_samples, warm_up
 # did not move the rest; handing out one at a time costs ~5 ms between tasks.
 WORKER_SATURATION = 1.0
 ONE_THREAD = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
+# dask settings for the clusters this module starts.  The sampling profiler cost the workers
+# ~8% of their time.  dask's housekeeping (20 ms event-loop ticks, 0.5 s system monitor with
+# GIL sampling, 0.1 s memory polls) took ~0.29 CPU-s per 3.4 s of an idle two-worker local
+# cluster, 4% of a 2-core machine; at the intervals below it takes 0.04 CPU-s.  The nannies
+# still enforce memory limits, polling every second.
+CLUSTER_CONFIG = {
+    "distributed.nanny.pre-spawn-environ": ONE_THREAD,
+    "distributed.scheduler.worker-saturation": WORKER_SATURATION,
+    "distributed.worker.profile.enabled": False,
+    "distributed.admin.tick.interval": "1s",
+    "distributed.admin.system-monitor.interval": "5s",
+    "distributed.admin.system-monitor.gil.enabled": False,
+    "distributed.worker.memory.monitor-interval": "1s",
+}
 
 
 @dataclass(frozen=True)
@@ -113,11 +127,7 @@ def open_client(run: RunSpec) -> Iterator:
         with client:
             yield client
         return
-    # one task per worker at a time (WORKER_SATURATION); dask's sampling profiler costs the
-    # workers ~8% of their time here, so it is off
-    with dask.config.set({"distributed.nanny.pre-spawn-environ": ONE_THREAD,
-                          "distributed.scheduler.worker-saturation": WORKER_SATURATION,
-                          "distributed.worker.profile.enabled": False}):
+    with dask.config.set(CLUSTER_CONFIG):
         if run.cluster == "jobqueue":
             cluster = jobqueue_cluster(run)
         else:

@@ -32,3 +32,15 @@ def test_progress_reports_count_rate_and_eta():
     bar.close()
     assert "10/10" in buf.getvalue() and "samples/s" in buf.getvalue()
     assert "ETA 0 s" in buf.getvalue()
+
+
+def test_cluster_config_names_existing_dask_settings():
+    """dask.config.set accepts any key silently, so a misspelt setting would do nothing:
+    every key of CLUSTER_CONFIG must be one of distributed's own (its defaults name it)."""
+    import dask
+    import distributed  # noqa: F401 - loads distributed's defaults into dask.config
+
+    from sweep.execute import CLUSTER_CONFIG
+
+    for key in CLUSTER_CONFIG:
+        dask.config.get(key)  # raises KeyError for a key distributed does not define
