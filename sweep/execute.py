@@ -26,19 +26,18 @@ from .spec_run import RunSpec
 from .storage import ResultFile
 from .task import run_samples, warm_up
 
-# Tasks a worker holds per thread.  With every task assigned up front (inf) one worker was
-# left with the cheap tasks and idled ~0.5 s of a 3.4 s two-worker sweep while work stealing
-# did not move the rest; handing out one at a time costs ~5 ms between tasks.
-WORKER_SATURATION = 1.0
 ONE_THREAD = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
-# dask settings for the clusters this module starts.  The sampling profiler cost the workers
+# dask settings for the clusters this module starts.  One task per worker thread at a time:
+# with every task assigned up front, one worker was left with the cheap tasks and idled
+# ~0.5 s of a 3.4 s two-worker sweep while work stealing did not move the rest (handing out
+# one at a time costs ~5 ms between tasks).  The sampling profiler cost the workers
 # ~8% of their time.  dask's housekeeping (20 ms event-loop ticks, 0.5 s system monitor with
 # GIL sampling, 0.1 s memory polls) took ~0.29 CPU-s per 3.4 s of an idle two-worker local
 # cluster, 4% of a 2-core machine; at the intervals below it takes 0.04 CPU-s.  The nannies
 # still enforce memory limits, polling every second.
 CLUSTER_CONFIG = {
     "distributed.nanny.pre-spawn-environ": ONE_THREAD,
-    "distributed.scheduler.worker-saturation": WORKER_SATURATION,
+    "distributed.scheduler.worker-saturation": 1.0,
     "distributed.worker.profile.enabled": False,
     "distributed.admin.tick.interval": "1s",
     "distributed.admin.system-monitor.interval": "5s",

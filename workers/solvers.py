@@ -91,14 +91,6 @@ _SCS_STATUS = {1: "optimal", 2: "optimal_inaccurate", -1: "unbounded", -6: "unbo
                -5: "interrupted"}
 
 
-# SCS's own choice of direct solver: MKL Pardiso where the wheel ships it, else QDLDL.
-# QDLDL is ~15% faster on easy samples but has no pivoting: on the quantum switch (two
-# 256 x 256 blocks) its factorisation broke down after 153 s where Pardiso solved in 12.5 s
-# (75 iterations), and on two tripartite-qubit samples (eps 1e-8) it needed 21525 and
-# 186625 iterations against Pardiso's 1900 and 2475.
-SCS_LINEAR_SOLVER = "AUTO"
-
-
 class ScsBackend:
     """SCS called directly with its complex PSD cone.
 
@@ -116,8 +108,11 @@ class ScsBackend:
         self.problem = problem
         settings = dict(eps_abs=options.eps_abs, eps_rel=options.eps_rel,
                         max_iters=options.max_iters, verbose=False)
-        if hasattr(scs, "LinearSolver"):  # scs >= 3.2.7 lets the direct solver be chosen
-            settings["linear_solver"] = getattr(scs.LinearSolver, SCS_LINEAR_SOLVER)
+        # no linear_solver: SCS's own choice is MKL Pardiso where the wheel ships it, else
+        # QDLDL.  Forcing QDLDL (~15% faster on easy samples, no pivoting) broke down on the
+        # quantum switch (two 256 x 256 blocks) after 153 s where Pardiso solves in 12.5 s,
+        # and took 21525 and 186625 iterations on two tripartite-qubit samples (eps 1e-8)
+        # against Pardiso's 1900 and 2475.
         if options.time_limit is not None:
             settings["time_limit_secs"] = float(options.time_limit)
         self.max_iters = options.max_iters
@@ -187,6 +182,7 @@ class ClarabelBackend:
             st.time_limit = float(options.time_limit)
         self._settings = st
         self._cones = [clarabel.PSDTriangleConeT(2 * n) for n in problem.cone_dims]
+        self._need = clarabel_bytes(problem.cone_dims)
         n = problem.A.shape[1]
         self._P = sp.csc_matrix((n, n))
         self.setup_time = 0.0
@@ -195,11 +191,11 @@ class ClarabelBackend:
         import clarabel
 
         t0 = time.perf_counter()
-        need, have = clarabel_bytes(self.problem.cone_dims), available_bytes()
-        if need > have:
+        have = available_bytes()
+        if self._need > have:
             # Clarabel would abort the whole process (a failed allocation is not an exception)
             return _error(self.name, MemoryError(
-                f"Clarabel needs ~{need / 2**30:.1f} GiB for the dense PSD blocks "
+                f"Clarabel needs ~{self._need / 2**30:.1f} GiB for the dense PSD blocks "
                 f"{tuple(self.problem.cone_dims)} (available {have / 2**30:.1f} GiB)"), 0.0)
         try:
             solver = clarabel.DefaultSolver(self._P, self.problem.c, self.problem.A, b,
@@ -228,7 +224,7 @@ def clarabel_bytes(cone_dims) -> int:
 
 
 def available_bytes() -> int:
-    """Memory available to this process now (psutil, a dependency of distributed)."""
+    """Memory available to this process now."""
     import psutil
 
     return int(psutil.virtual_memory().available)
