@@ -222,7 +222,7 @@ def textbook_generalized_robustness(w: np.ndarray, dims: Sequence[int], solver: 
 
 def _tripartite_constraints(parts: dict[tuple[int, int], cp.Variable],
                             dims: Sequence[int]) -> list:
-    """Conditions (i)-(iii) of MATH.md sec. 4 (Wechs, Abbott, Branciard, NJP 21, 013027)."""
+    """Conditions (i)-(iii) of workers/THEORY.md §4 (Wechs, Abbott, Branciard, NJP 21, 013027)."""
     constraints = []
     for k in range(3):
         others = [j for j in range(3) if j != k]
@@ -242,7 +242,7 @@ def _tripartite_constraints(parts: dict[tuple[int, int], cp.Variable],
 def textbook_random_robustness_tripartite(w: np.ndarray, dims: Sequence[int],
                                           solver: str = "SCS", eps: float = 1e-8,
                                           max_iters: int = 200_000) -> TextbookResult:
-    """Tripartite random robustness with dynamical causal order (MATH.md sec. 4).
+    """Tripartite random robustness with dynamical causal order (workers/THEORY.md §4).
 
     ``min r  s.t.  W + r 1° = Σ_{k≠l} W_(k,l)``, each ``W_(k,l) ⪰ 0`` and satisfying
     conditions (i)-(iii) as dense matrix equations; ``r ≥ 0``. Six dense variables of the full

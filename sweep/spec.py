@@ -50,7 +50,7 @@ class ScenarioSpec(Strict):
 
 
 class NamedFamily(Strict):
-    """A published process (MATH.md section 6), optionally mixed with white noise."""
+    """A published process (workers/THEORY.md §6), optionally mixed with white noise."""
 
     kind: Literal["named"]
     name: Literal["ocb", "quantum_switch", "lugano"] = Field(description="the process")
@@ -60,7 +60,7 @@ class NamedFamily(Strict):
 
 
 class EnsembleFamily(Strict):
-    """A random ensemble with its measure named (MATH.md section 8; workers/ensembles.py)."""
+    """A random ensemble with its measure named (workers/THEORY.md §8; workers/ensembles.py)."""
 
     kind: Literal["ensemble"]
     measure: Literal["valid_direction", "wishart", "comb", "comb_mixture"] = Field(

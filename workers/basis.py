@@ -1,4 +1,4 @@
-"""Product Hilbert-Schmidt basis and support patterns (MATH.md section 2).
+"""Product Hilbert-Schmidt basis and support patterns (workers/THEORY.md §2).
 
 Each local system of dimension d gets the basis ``sigma_0 = 1`` followed by the d^2 - 1
 generalised Gell-Mann matrices (symmetric, antisymmetric, diagonal), scaled so that
@@ -10,7 +10,7 @@ An operator W on the product space is written as
 
 with ``sigma_alpha`` the tensor product of local elements and D the total dimension.  The
 *pattern* of a multi-index alpha is the bitmask of subsystems on which it is nontrivial; every
-trace-and-replace map of MATH.md keeps or kills whole patterns.
+trace-and-replace map of workers/THEORY.md keeps or kills whole patterns.
 
 All transforms are tensor contractions, one local system at a time; nothing is looped over
 the D^2 product elements.

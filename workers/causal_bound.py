@@ -10,7 +10,7 @@ the definition is that of Oreshkov & Giarmatzi, NJP 18, 093020 (2016) and Abbott
 PRA 94, 032131 (2016) for deterministic correlations.  The causal polytope is the convex hull
 of these tables read as 0/1 behaviours p(a|x); the causal bound of a linear objective is its
 maximum over the polytope, found by :func:`scipy.optimize.linprog` (HiGHS) over the convex
-weights.  Check values (MATH.md section 7): 112 strategies bipartite binary, 138,304
+weights.  Check values (workers/THEORY.md §7): 112 strategies bipartite binary, 138,304
 tripartite binary.
 """
 

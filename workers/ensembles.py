@@ -1,4 +1,4 @@
-"""Random ensembles of process operators (MATH.md section 8), each with its measure named.
+"""Random ensembles of process operators (workers/THEORY.md §8), each with its measure named.
 
 Every sampler is a pure function ``sampler(scenario, rng, **params) -> Sample`` taking a
 :class:`~workers.scenario.Scenario` and a seeded :class:`numpy.random.Generator`; the same
@@ -9,7 +9,7 @@ Measures
 --------
 ``valid_direction``
     H = (1/D) sum_alpha g_alpha sigma_alpha over the *allowed, non-identity* product-basis
-    elements alpha of the valid subspace (MATH.md section 2), g_alpha i.i.d. standard normal;
+    elements alpha of the valid subspace (workers/THEORY.md §2), g_alpha i.i.d. standard normal;
     H is Hermitian, traceless and satisfies L_V(H) = H.  The PSD boundary along H is
     t_max = (1/d_I) / (-lambda_min(H)) (exact: 1° is proportional to the identity), and
     W = 1° + u t_max H.  u is fixed, or uniform on [0, 1]; aux = u.  u = 1 lies on the boundary.

@@ -1,4 +1,4 @@
-"""Named process operators and causally ordered combs (MATH.md section 6).
+"""Named process operators and causally ordered combs (workers/THEORY.md §6).
 
 Every builder returns a :class:`Process`: the scenario it lives in, the matrix in the
 documented subsystem order (P, A1_I, A1_O, ..., F), a name and its source.
@@ -120,7 +120,7 @@ def random_comb(
 
     Channels P -> A_I^{k1} M, A_O^{k1} M -> A_I^{k2} M, ..., A_O^{kN} M -> F E are Haar
     isometries with a memory M of dimension ``memory_dim``; the final environment E is traced.
-    The result is causally separable by construction (MATH.md section 6, "any causally ordered
+    The result is causally separable by construction (workers/THEORY.md §6, "any causally ordered
     comb"); its Choi operator uses the convention C = sum |x><x'| (x) V|x><x'|V^dagger.
     """
     order = list(order)
@@ -162,7 +162,7 @@ def random_comb(
 
 
 def white_noise_mixture(scenario: Scenario, W: np.ndarray, p: float) -> np.ndarray:
-    """``p W + (1 - p) 1°`` (MATH.md section 8, ensemble 1)."""
+    """``p W + (1 - p) 1°`` (workers/THEORY.md §8, ensemble 1)."""
     if not 0.0 <= p <= 1.0:
         raise ValueError(f"white-noise weight p={p}, expected 0 <= p <= 1")
     return p * np.asarray(W) + (1 - p) * white_noise(scenario)

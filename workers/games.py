@@ -124,11 +124,11 @@ def _binary_game(name: str, parties: tuple[str, ...], n_inputs: tuple[int, ...],
 def ocb_guess() -> Game:
     """Guess-your-partner's-bit with a third bit choosing the guesser (OCB 2012).
 
-    Source: Oreshkov, Costa, Brukner, Nat. Commun. 3, 1092 (2012); MATH.md section 7.
+    Source: Oreshkov, Costa, Brukner, Nat. Commun. 3, 1092 (2012); workers/THEORY.md §7.
     Alice's input is her bit x in {0,1}; Bob's input index is ``y = 2*b + b2`` for his bit b and
     the uniform choice bit b2 (b' in the paper).  Alice's output a is her guess of b, Bob's
     output is his guess of x.  Win iff (b2 = 0 and Bob's output = x) or (b2 = 1 and a = b).
-    All eight inputs are equally likely.  In MATH.md section 7's notation Alice's bit is called
+    All eight inputs are equally likely.  In workers/THEORY.md §7's notation Alice's bit is called
     a and her guess x; the instruments there map onto this encoding one to one.
     """
     def wins(a: int, g: int, x: int, y: int) -> bool:
@@ -151,7 +151,7 @@ def both_guess() -> Game:
 
 
 def lugano_game() -> Game:
-    """Tripartite game won with certainty by the Lugano process (MATH.md sections 6-7).
+    """Tripartite game won with certainty by the Lugano process (workers/THEORY.md §§6-7).
 
     Uniform bits x, y, z for A, B, C; win iff a = (not y) and z, b = (not z) and x,
     c = (not x) and y (Baumeler & Wolf, NJP 18, 013036 (2016)).

@@ -1,7 +1,7 @@
 """The layout of a robustness problem: everything but the conic matrices.
 
 A layout fixes, for one scenario and causal structure: the merged leaves, each leaf's
-per-pattern linear system (particular solution and null space, MATH.md sections 2-4 in the
+per-pattern linear system (particular solution and null space, workers/THEORY.md §§2-4 in the
 product basis), the particular weights P of every basis element, which basis elements the
 structure can span, and each leaf's reduced space (:mod:`workers.leaf_spaces`).  The conic
 compiler (:mod:`workers.conic`) turns it into A, b, c for SCS, Clarabel and the IPM; the

@@ -4,7 +4,7 @@ If every basis element a leaf W_j can carry (its particular solution and its nul
 freedom) is trivial on a set T of subsystems, then ``W_j = X ⊗ 1_T`` (interleaved in the
 subsystem order) and ``W_j ⪰ 0  ⇔  X ⪰ 0``: the PSD block shrinks by the factor ``d_T``.
 This is exact, not a relaxation.  It holds for every fixed-order leaf on the last party's
-output when there is no global future (MATH.md section 3: a comb never ends on an output), so
+output when there is no global future (workers/THEORY.md §3: a comb never ends on an output), so
 bipartite qubit leaves are 8 x 8 instead of 16 x 16 and tripartite ones 32 x 32 instead of
 64 x 64.
 

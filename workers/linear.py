@@ -1,7 +1,7 @@
 """Dense partial trace and trace-and-replace maps on the documented subsystem order.
 
 These act on full matrices through tensor reshapes; the SDPs never need them (they use the
-pattern masks), but they give an independent, readable statement of MATH.md section 1.
+pattern masks), but they give an independent, readable statement of workers/THEORY.md §1.
 """
 
 from __future__ import annotations
@@ -29,7 +29,7 @@ def partial_trace(W: np.ndarray, dims: Sequence[int], traced: Sequence[int]) -> 
 
 
 def trace_replace(W: np.ndarray, dims: Sequence[int], systems: Sequence[int]) -> np.ndarray:
-    """The map ``_X W = Tr_X(W) (x) 1_X / d_X`` for X = ``systems`` (MATH.md section 1)."""
+    """The map ``_X W = Tr_X(W) (x) 1_X / d_X`` for X = ``systems`` (workers/THEORY.md §1)."""
     dims = list(dims)
     n = len(dims)
     systems = sorted(set(systems))

@@ -1,7 +1,7 @@
 """Support-pattern masks: which product-basis patterns each linear constraint allows.
 
 A pattern is a bitmask over :attr:`Scenario.subsystems` (bit s set = nontrivial on s).
-Every trace-and-replace condition of MATH.md sections 2-4 keeps or kills whole patterns, so
+Every trace-and-replace condition of workers/THEORY.md §§2-4 keeps or kills whole patterns, so
 each constraint is a predicate on patterns, evaluated here on integer arrays.
 """
 
@@ -16,12 +16,12 @@ from .scenario import Scenario
 
 
 def party_bits(scenario: Scenario, k: int) -> int:
-    """Bitmask of party k's input and output (the A^k := A_I^k A_O^k of MATH.md)."""
+    """Bitmask of party k's input and output (the A^k := A_I^k A_O^k of workers/THEORY.md)."""
     return (1 << scenario.input_index(k)) | (1 << scenario.output_index(k))
 
 
 def valid_patterns(scenario: Scenario, codes: np.ndarray) -> np.ndarray:
-    """Patterns allowed in a valid process operator (MATH.md section 2).
+    """Patterns allowed in a valid process operator (workers/THEORY.md §2).
 
     Allowed iff the identity, or some party has it nontrivial on its input and trivial on its
     output, or it is nontrivial on the global future F.  (Araujo et al., NJP 17, 102001 (2015).)
@@ -45,7 +45,7 @@ def time_ordered_subsystems(scenario: Scenario, order: Sequence[int]) -> list[in
 
 
 def comb_patterns(scenario: Scenario, order: Sequence[int], codes: np.ndarray) -> np.ndarray:
-    """Patterns allowed in a comb with the fixed causal order ``order`` (MATH.md section 3).
+    """Patterns allowed in a comb with the fixed causal order ``order`` (workers/THEORY.md §3).
 
     Allowed iff the identity or the last subsystem (in time order) on which the pattern is
     nontrivial is an input.

@@ -7,7 +7,7 @@ The one subsystem order used everywhere in orderless is
 where P is the global past (an output-only system) and F the global future (an input-only
 system).  Both are always present in the subsystem list; a scenario without them has
 ``d_past = 1`` / ``d_future = 1``, and a one-dimensional system changes nothing in the matrix.
-Following MATH.md section 1, P is treated as a party with ``d_in = 1`` and F as a party with
+Following workers/THEORY.md §1, P is treated as a party with ``d_in = 1`` and F as a party with
 ``d_out = 1`` wherever that removes a special case.
 """
 

@@ -1,6 +1,6 @@
 """Lower bounds on a process's value in a causal game by see-saw over the instruments.
 
-Conventions (MATH.md section 7).  Party k has input space A_I (dim ``d_in``) and output
+Conventions (workers/THEORY.md §7).  Party k has input space A_I (dim ``d_in``) and output
 space A_O (dim ``d_out``); W acts on A1_I A1_O A2_I A2_O ... in that order (no global past or
 future here: contract them beforehand).  Party k's instrument is an array of Choi operators
 ``M[x, a]`` on A_I ⊗ A_O, shape ``(n_x, n_a, d, d)`` with ``d = d_in * d_out``, each M[x, a] ⪰ 0
@@ -10,7 +10,7 @@ and ``Tr_{A_O} sum_a M[x, a] = 1_{A_I}`` for every x.  The behaviour is
 
 with no transpose.  The set of such instruments is closed under transposition, so the optimal
 value does not depend on whether one reads the Choi operators with or without a transpose; the
-explicit instruments of MATH.md section 7 are real symmetric, so there the question does not
+explicit instruments of workers/THEORY.md §7 are real symmetric, so there the question does not
 arise.  The see-saw fixes all parties but one, whose best instrument is then an SDP (built once
 per party with cvxpy Parameters, DPP), and cycles; each step can only raise the value.
 """

@@ -1,7 +1,7 @@
 """Exact shortcuts taken before any SDP (switched off by ``force_solve``).
 
 A positive semidefinite W whose product-basis coefficients lie in the pattern mask of one
-fixed causal order is itself a comb of that order (MATH.md section 3), hence causally
+fixed causal order is itself a comb of that order (workers/THEORY.md §3), hence causally
 separable with random and generalised robustness 0.  White noise 1° is the simplest case: it
 lies in every order's mask.  The shortcut's decomposition (W in that order's leaf, zeros
 elsewhere) satisfies every structure's conditions exactly, so it certifies like a solve.

@@ -1,6 +1,6 @@
 """Causal structures: decompositions W = sum_j W_j into PSD leaves with pattern constraints.
 
-Every characterisation of MATH.md section 4 has the same shape: PSD leaves W_j (one per
+Every characterisation of workers/THEORY.md §4 has the same shape: PSD leaves W_j (one per
 ordering of the parties), and for groups of leaves the condition
 ``_{[1-X] Y} (sum_{j in G} W_j) = 0``.  In the product basis that condition says: the summed
 coefficient of every pattern that is nontrivial on X and trivial on Y vanishes.  So per
@@ -164,7 +164,7 @@ def _conditional_validity_groups(scenario: Scenario, leaves: list[tuple[int, ...
     If the prefix parties act first, every operation they perform leaves the others a
     (conditional, unnormalised) causally separable and hence valid process; so W_(prefix) has
     no pattern whose part on the remaining systems is nonempty and outside the valid subspace
-    of the remaining scenario (MATH.md sec. 2 mask, applied to the rest).  In the ``necessary``
+    of the remaining scenario (workers/THEORY.md §2 mask, applied to the rest).  In the ``necessary``
     relaxation the remaining parties are the enlarged ones (carried systems count as inputs).
     Without this, handing k's input on to its receiver would let that input depend on a later
     party's output.

@@ -1,4 +1,4 @@
-"""Validity of process operators (MATH.md section 2) and the projector onto the valid subspace.
+"""Validity of process operators (workers/THEORY.md §2) and the projector onto the valid subspace.
 
 W is a valid process operator iff W >= 0, Tr W = d_O and L_V(W) = W (Araujo et al., NJP 17,
 102001 (2015), appendix).  In the product basis L_V is the mask of

@@ -2,8 +2,8 @@
 
 Both sides formulate the robustness SDPs of Araújo et al., "Witnessing causal
 nonseparability", NJP 17, 102001 (2015) (bipartite), and the tripartite dynamical-order
-characterisation of Wechs, Abbott, Branciard, NJP 21, 013027 (2019) as written in MATH.md
-sec. 4, but share no code: bench/textbook.py uses dense Hermitian variables with
+characterisation of Wechs, Abbott, Branciard, NJP 21, 013027 (2019) as written in workers/THEORY.md
+§4, but share no code: bench/textbook.py uses dense Hermitian variables with
 ``cp.partial_trace``/``cp.kron``; workers/ uses per-pattern null spaces in the product basis.
 Answers are compared on seeded random valid processes (no times are asserted).
 """
@@ -59,7 +59,7 @@ def test_batched_fast_path_agrees():
 @pytest.mark.slow
 def test_tripartite_dynamical_agree():
     """Tripartite, C with a trivial output (32x32), OCB between A and B mixed with a random
-    valid process: conditions (i)-(iii) of MATH.md sec. 4 (Wechs, Abbott, Branciard 2019).
+    valid process: conditions (i)-(iii) of workers/THEORY.md §4 (Wechs, Abbott, Branciard 2019).
     The textbook side takes ~25 s here (its setup dominates)."""
     dims = (2, 2, 2, 2, 2, 1)
     s = Scenario.from_dims(list(dims))
@@ -72,7 +72,7 @@ def test_tripartite_dynamical_agree():
 @pytest.mark.slow
 def test_tripartite_qubit_decomposition_meets_textbook_constraints():
     """Tripartite qubits (64x64): the fast path's optimal leaves W_(k,l,m) satisfy the
-    textbook's dense conditions (i)-(iii) (MATH.md sec. 4; Wechs, Abbott, Branciard 2019),
+    textbook's dense conditions (i)-(iii) (workers/THEORY.md §4; Wechs, Abbott, Branciard 2019),
     are PSD, and sum to W + r 1° with r the reported (signed) optimum."""
     s = Scenario.from_dims([2] * 6)
     dims = (2,) * 6

@@ -2,7 +2,7 @@
 
 Independent references used here: a numpy reshape/trace implementation of trace-and-replace
 written in this file, published robustness values (Araújo et al., NJP 17, 102001 (2015)) and
-identities of the mathematics (MATH.md secs. 1-5).
+identities of the mathematics (workers/THEORY.md §§1-5).
 """
 
 from __future__ import annotations
@@ -47,7 +47,7 @@ def choi_identity(d: int) -> np.ndarray:
 
 
 def np_trace_replace(w: np.ndarray, dims: tuple[int, ...], axes: list[int]) -> np.ndarray:
-    """Reference trace-and-replace by reshaping to a 2n-index tensor (MATH.md sec. 1)."""
+    """Reference trace-and-replace by reshaping to a 2n-index tensor (workers/THEORY.md §1)."""
     n, t = len(dims), w.reshape(dims + dims)
     for ax in axes:
         reduced = np.trace(t, axis1=ax, axis2=ax + n)
@@ -101,7 +101,7 @@ def linear_map_matrix(expr_of, size: int) -> np.ndarray:
 def test_trace_replace_matches_numpy_reference(dims, axes):
     """_X W = Tr_X(W) ⊗ 1_X / d_X in place, for traced systems anywhere in the order.
 
-    Source: definition in Araújo et al. NJP 17, 102001 (2015), sec. 2 (MATH.md sec. 1);
+    Source: definition in Araújo et al. NJP 17, 102001 (2015), sec. 2 (workers/THEORY.md §1);
     reference is the reshape/np.trace implementation above, not the code under test.
     """
     rng = np.random.default_rng(11)
@@ -115,7 +115,7 @@ def test_validity_map_matches_reference_and_counts_88_terms():
     """L_V agrees with a numpy product formula and has rank 88 for two qubit parties.
 
     Source: L_V from Araújo et al. 2015 (appendix); the count 88 of 256 Pauli strings is the
-    derived check value in MATH.md sec. 5. Also L_V is a projector (idempotent).
+    derived check value in workers/THEORY.md §5. Also L_V is a projector (idempotent).
     """
     rng = np.random.default_rng(5)
     w = rng.normal(size=(16, 16)) + 1j * rng.normal(size=(16, 16))
@@ -129,7 +129,7 @@ def test_validity_map_matches_reference_and_counts_88_terms():
 def test_comb_constraints_leave_52_per_order_and_16_in_both():
     """The comb equalities cut out 52 dimensions per order, 16 common to both orders.
 
-    Source: derived counting check in MATH.md secs. 2 and 5 (52 of 256 Pauli strings per fixed
+    Source: derived counting check in workers/THEORY.md §§2 and 5 (52 of 256 Pauli strings per fixed
     order, 16 in both), for the constraints of Araújo et al. 2015.
     """
     def stacked(x, orders):
@@ -145,7 +145,7 @@ def test_ocb_random_robustness(solver):
     """OCB process: R_r = sqrt(2) - 1.
 
     Source: Araújo et al. NJP 17, 102001 (2015), sec. 5 value for the OCB process of
-    Oreshkov, Costa, Brukner 2012 (check value in MATH.md sec. 5).
+    Oreshkov, Costa, Brukner 2012 (check value in workers/THEORY.md §5).
     """
     result = textbook_random_robustness(ocb_process(), QUBITS, solver=solver)
     assert isinstance(result, TextbookResult)
@@ -156,7 +156,7 @@ def test_ocb_random_robustness(solver):
 def test_ocb_generalized_robustness():
     """OCB process: R_g = 3 - 2 sqrt(2) ≈ 0.171573.
 
-    Source: check value in MATH.md sec. 5 (Araújo et al. 2015 give the OCB generalised
+    Source: check value in workers/THEORY.md §5 (Araújo et al. 2015 give the OCB generalised
     robustness; the optimal Ω there is the sign-flipped OCB process).
     """
     result = textbook_generalized_robustness(ocb_process(), QUBITS)
@@ -165,12 +165,12 @@ def test_ocb_generalized_robustness():
 
 
 def fixed_order_comb(rng: np.random.Generator) -> np.ndarray:
-    """W = rho_AI ⊗ (Choi of identity AO -> BI) ⊗ 1_BO: a valid A<B comb (MATH.md sec. 6)."""
+    """W = rho_AI ⊗ (Choi of identity AO -> BI) ⊗ 1_BO: a valid A<B comb (workers/THEORY.md §6)."""
     return kron(random_state(rng, 2), choi_identity(2), I2)
 
 
 def test_fixed_order_comb_and_order_mixture_are_separable():
-    """A comb of order A<B, and a mixture with a B<A comb, have R_r = 0 (MATH.md sec. 6).
+    """A comb of order A<B, and a mixture with a B<A comb, have R_r = 0 (workers/THEORY.md §6).
 
     Source: causally ordered combs are causally separable by definition (OCB 2012; Araújo et
     al. 2015); validity of the inputs is checked with the numpy L_V above.
@@ -188,7 +188,7 @@ def test_fixed_order_comb_and_order_mixture_are_separable():
 def test_white_noise_has_zero_robustness():
     """White noise 1° = 1/d_I is causally separable: R_r = R_g = 0.
 
-    Source: Araújo et al. 2015, sec. 5 (1° is a valid, separable process); MATH.md sec. 5.
+    Source: Araújo et al. 2015, sec. 5 (1° is a valid, separable process); workers/THEORY.md §5.
     """
     noise = np.eye(16) / 4
     assert abs(textbook_random_robustness(noise, QUBITS).value) < 1e-6
@@ -199,7 +199,7 @@ def test_generalized_below_random_robustness_on_noisy_ocb():
     """R_g <= R_r, and R_r of p W_OCB + (1-p) 1° equals max(0, p sqrt2 - 1).
 
     Source: R_g minimises over all valid Ω, and 1° is one of them (Araújo et al. 2015, sec. 5).
-    Closed form derived from the MATH.md sec. 5 argument (|α| + |β| <= 1): with weight p,
+    Closed form derived from the workers/THEORY.md §5 argument (|α| + |β| <= 1): with weight p,
     separability of (W_p + r 1°)/(1 + r) needs p sqrt2 <= 1 + r, so R_r = max(0, p sqrt2 - 1).
     """
     rng = np.random.default_rng(7)
@@ -215,7 +215,7 @@ def test_generalized_below_random_robustness_on_noisy_ocb():
 def test_tripartite_with_trivial_party_reduces_to_bipartite(order):
     """OCB on two parties plus a party with d_I = d_O = 1: tripartite R_r = sqrt(2) - 1.
 
-    Source: with a trivial party, conditions (i)-(iii) of MATH.md sec. 4 (Wechs, Abbott,
+    Source: with a trivial party, conditions (i)-(iii) of workers/THEORY.md §4 (Wechs, Abbott,
     Branciard, NJP 21, 013027 (2019)) reduce to the bipartite A<B / B<A combs (derived here),
     so the value is the bipartite one of Araújo et al. 2015. The trivial party is placed last
     or first.
@@ -247,7 +247,7 @@ def test_tripartite_dynamical_order_is_separable():
 
     Slow: the 32x32 problem spends ~10 s in cvxpy compilation (measured on this machine).
 
-    Source: MATH.md sec. 4 / Wechs, Abbott, Branciard 2019: condition (i) acts on the sum
+    Source: workers/THEORY.md §4 / Wechs, Abbott, Branciard 2019: condition (i) acts on the sum
     W_(k), so a first party may choose the order of the others. Neither branch alone is a valid
     process, so imposing (i) per term would fail here. Validity checked with numpy L_V.
     """

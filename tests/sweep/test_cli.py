@@ -26,7 +26,7 @@ def test_run_summary_plot(write_spec, tmp_path, capsys):
 
 def test_hdf5_files_family(write_spec, tmp_path, capsys):
     """Operators read from an HDF5 dataset (n, D, D): the OCB process is nonseparable, white
-    noise separable (MATH.md sec. 5)."""
+    noise separable (workers/THEORY.md §5)."""
     from workers.families import ocb_process
     ops = np.stack([ocb_process().matrix, np.eye(16) / 4])
     with h5py.File(tmp_path / "ops.h5", "w") as f:

@@ -25,7 +25,7 @@ def ocb_file(tmp_path):
 
 
 def test_check_json_keys(ocb_file, capsys):
-    """JSON keys of issue 2; values: OCB R_r = sqrt2 - 1, R_g = 3 - 2 sqrt2 (MATH.md sec. 5)."""
+    """JSON keys of issue 2; values: OCB R_r = sqrt2 - 1, R_g = 3 - 2 sqrt2 (workers/THEORY.md §5)."""
     code, out, _ = _run(capsys, "check", str(ocb_file), "--dims", "2,2,2,2", "--json")
     assert code == 0
     d = json.loads(out)
@@ -42,7 +42,7 @@ def test_check_json_keys(ocb_file, capsys):
 
 
 def test_check_comb_certified_separable(tmp_path, capsys, rng):
-    """A random comb (MATH.md sec. 6: separable) gets a certified 'separable' verdict; a
+    """A random comb (workers/THEORY.md §6: separable) gets a certified 'separable' verdict; a
     separable/nonseparable verdict never comes with certified false."""
     from workers.families import random_comb
     from workers.scenario import Scenario

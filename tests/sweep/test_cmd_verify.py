@@ -8,7 +8,7 @@ from sweep.cli import main
 
 
 def _spec(tmp_path, certify=True):
-    """OCB white-noise grid across the threshold 1/sqrt2 (MATH.md sec. 5)."""
+    """OCB white-noise grid across the threshold 1/sqrt2 (workers/THEORY.md §5)."""
     data = {"family": {"kind": "named", "name": "ocb"},
             "grid": [{"param": "weight", "values": [0.6, 0.9, 1.0]}],
             "compute": {"eps": 1e-8, "certify": certify},

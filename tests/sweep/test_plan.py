@@ -1,5 +1,5 @@
 """Planning: grid order, per-sample seeds (numpy SeedSequence spawn), and independence of the
-results from task grouping (MATH.md sec. 8: one root seed, one child seed per sample)."""
+results from task grouping (workers/THEORY.md §8: one root seed, one child seed per sample)."""
 
 import numpy as np
 

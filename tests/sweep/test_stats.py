@@ -40,7 +40,7 @@ def test_point_stats_counts_and_quantiles():
 
 
 def test_ocb_white_noise_grid_changes_verdict_at_inverse_sqrt2(tmp_path):
-    """MATH.md sec. 5 (Araujo et al. 2015): p W_OCB + (1-p) 1° is nonseparable iff
+    """workers/THEORY.md §5 (Araujo et al. 2015): p W_OCB + (1-p) 1° is nonseparable iff
     p > 1/sqrt2, since R_r(W_OCB) = sqrt2 - 1.  Derived from the definition of R_r: mixing
     more noise into p W + (1-p) 1° only lowers the weight of W to p/(1+r), so
     R_r(p) = max(0, sqrt2 p - 1)."""
@@ -56,7 +56,7 @@ def test_ocb_white_noise_grid_changes_verdict_at_inverse_sqrt2(tmp_path):
 
 
 def test_sweep_of_random_combs_is_never_nonseparable(tmp_path):
-    """Ground truth (MATH.md sec. 6 and 8): causally ordered combs and their mixtures are
+    """Ground truth (workers/THEORY.md §6 and 8): causally ordered combs and their mixtures are
     separable, so the fraction nonseparable is 0 (with eps 1e-8 none is undecided either)."""
     for measure in ("comb", "comb_mixture"):
         spec = parse_spec({"scenario": {"dims": [2, 2, 2, 2]},

@@ -57,7 +57,7 @@ def test_auto_task_size_batches_and_balances():
 def test_warm_started_grid_matches_cold():
     """compute.warm_start chains SCS solves along a task's grid points: same certified
     verdicts and robustness within the solver's accuracy as cold solves (OCB white-noise
-    grid; R_r = max(0, sqrt2 p - 1), MATH.md sec. 5)."""
+    grid; R_r = max(0, sqrt2 p - 1), workers/THEORY.md §5)."""
     base = {"family": {"kind": "named", "name": "ocb"},
             "grid": [{"param": "weight", "start": 0.5, "stop": 1.0, "num": 11}],
             "compute": {"solver": "SCS", "eps": 1e-9},

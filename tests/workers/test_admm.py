@@ -18,7 +18,7 @@ ADMM = SolverOptions(solver="ADMM", eps_abs=1e-7, eps_rel=1e-7)
 
 
 def test_ocb_random_robustness_and_certificate():
-    """R_r(OCB) = sqrt2 - 1 (MATH.md sec. 5), certified exactly from the ADMM duals."""
+    """R_r(OCB) = sqrt2 - 1 (workers/THEORY.md §5), certified exactly from the ADMM duals."""
     p = ocb_process()
     res = analyse(p.scenario, p.matrix, ("random",), "exact", ADMM, keep_certificate=True)
     r = res.bounds["random"].upper_from

@@ -51,7 +51,7 @@ def test_coefficients_match_dense_traces(rng):
 
 
 def test_pattern_sizes():
-    """Pattern block sizes are prod (d_s^2 - 1) over nontrivial systems (MATH.md sec. 2)."""
+    """Pattern block sizes are prod (d_s^2 - 1) over nontrivial systems (workers/THEORY.md §2)."""
     sizes = pattern_sizes((2, 3))
     assert sizes == {0: 1, 1: 3, 2: 8, 3: 24}
     assert len(pattern_codes((2, 2, 2, 2))) == 256

@@ -28,7 +28,7 @@ def _per_party(tables: np.ndarray, n_outputs: tuple[int, ...]) -> np.ndarray:
 
 
 def test_bipartite_binary_count_by_brute_force() -> None:
-    """112 deterministic causal strategies (MATH.md sec. 7; Branciard et al. NJP 18, 013008).
+    """112 deterministic causal strategies (workers/THEORY.md §7; Branciard et al. NJP 18, 013008).
 
     Independent reference: all 4**4 = 256 deterministic tables filtered by the bipartite
     definition (a ignores y, or b ignores x) must give the same set.
@@ -42,7 +42,7 @@ def test_bipartite_binary_count_by_brute_force() -> None:
 
 
 def test_tripartite_binary_count_and_definition() -> None:
-    """138,304 deterministic causal strategies, tripartite binary (MATH.md section 7).
+    """138,304 deterministic causal strategies, tripartite binary (workers/THEORY.md §7).
 
     Each table is checked against the recursive definition: some party k ignores the others'
     inputs and, for each x_k, the remaining pair is bipartite causal (Abbott et al., PRA 94,
@@ -66,7 +66,7 @@ def test_tripartite_binary_count_and_definition() -> None:
 @pytest.mark.parametrize("n_inputs, n_outputs, dim", [((2, 2), (2, 2), 12),
                                                       ((2, 2, 2), (2, 2, 2), 56)])
 def test_affine_dimension(n_inputs, n_outputs, dim) -> None:
-    """Affine dimension 12 (bipartite) and 56 (tripartite) (MATH.md section 7).
+    """Affine dimension 12 (bipartite) and 56 (tripartite) (workers/THEORY.md §7).
 
     Also the dimension of the normalised-behaviour space, prod|X| (prod|A| - 1) (identity).
     """
@@ -85,7 +85,7 @@ def test_affine_dimension(n_inputs, n_outputs, dim) -> None:
                                          ("lugano_game", 0.75)])
 def test_published_causal_bounds(name: str, bound: float) -> None:
     """ocb_guess 3/4 (OCB, Nat. Commun. 3, 1092 (2012)); both_guess 1/2 (Branciard et al.
-    2016); lugano_game 3/4 (MATH.md section 7, by LP)."""
+    2016); lugano_game 3/4 (workers/THEORY.md §7, by LP)."""
     game = get_game(name)
     result = causal_bound(game)
     assert result.value == pytest.approx(bound, abs=1e-9)

@@ -2,10 +2,10 @@
 rejection of tampered certificates.
 
 Sources: OCB process, Oreshkov, Costa, Brukner, Nat. Commun. 3, 1092 (2012), R_r = sqrt2 - 1
-(MATH.md section 5, derived there); Lugano process, Baumeler & Wolf, NJP 18, 013036 (2016)
+(workers/THEORY.md §5, derived there); Lugano process, Baumeler & Wolf, NJP 18, 013036 (2016)
 (causally nonseparable); quantum switch, Chiribella et al., PRA 88, 022318 (2013) and Araujo
 et al., NJP 17, 102001 (2015) (causally nonseparable); causally ordered combs are separable
-(MATH.md section 6).
+(workers/THEORY.md §6).
 """
 
 from __future__ import annotations
@@ -50,7 +50,7 @@ def _with(cert: Certificate, arrays=None, **meta) -> Certificate:
 
 def test_ocb_witness_verifies(ocb):
     """OCB is certified nonseparable with R_r >= bound, bound within 1e-6 below sqrt2 - 1
-    (value from MATH.md section 5, OCB 2012)."""
+    (value from workers/THEORY.md §5, OCB 2012)."""
     P, v = ocb
     assert v.certified and v.verdict == "nonseparable"
     rep = verify_certificate(P.scenario, P.matrix, v.certificate)
@@ -109,7 +109,7 @@ def test_broken_constraint_is_rejected(ocb):
 
 
 def test_swapped_process_is_rejected(ocb):
-    """W swapped for white noise (separable, MATH.md section 5): rejected by fingerprint, and
+    """W swapped for white noise (separable, workers/THEORY.md §5): rejected by fingerprint, and
     also by the exact inequality when the fingerprint is forged."""
     P, v = ocb
     noise = white_noise(P.scenario)
@@ -122,14 +122,14 @@ def test_swapped_process_is_rejected(ocb):
 
 def test_witness_from_sufficient_only_structure_is_rejected(ocb):
     """A witness of the fixed-order mixtures (a smaller set) proves nothing about causal
-    separability (MATH.md section 4: sufficient condition only)."""
+    separability (workers/THEORY.md §4: sufficient condition only)."""
     P, v = ocb
     rep = verify_certificate(P.scenario, P.matrix, _with(v.certificate, method="fixed_orders"))
     assert not rep.ok and "cannot support" in rep.reason
 
 
 def test_comb_gets_small_delta(comb):
-    """A comb is causally separable (MATH.md section 6): certified with delta' <= 1e-7."""
+    """A comb is causally separable (workers/THEORY.md §6): certified with delta' <= 1e-7."""
     sc, W, v = comb
     assert v.certified and v.verdict == "separable"
     assert v.decomposition_delta <= 1e-7

@@ -1,8 +1,8 @@
 """Certified verdicts with an automatic second pass, and the seeded certification sweep.
 
-Sources: OCB process R_r = sqrt2 - 1 (MATH.md section 5); combs are separable (MATH.md
-section 6); the white-noise process is separable (MATH.md section 5).  The sweep samples
-ensemble (2) of MATH.md section 8: W = 1° + u t_max H, H a Gaussian direction in the traceless
+Sources: OCB process R_r = sqrt2 - 1 (workers/THEORY.md §5); combs are separable (workers/THEORY.md
+§6); the white-noise process is separable (workers/THEORY.md §5).  The sweep samples
+ensemble (2) of workers/THEORY.md §8: W = 1° + u t_max H, H a Gaussian direction in the traceless
 valid subspace (Gaussian coefficient per allowed basis element), t_max the distance to the PSD
 boundary, u uniform on [0, 1]; root seed 2024, one SeedSequence child per sample.
 """
@@ -24,8 +24,8 @@ from workers.validity import white_noise
 
 
 def test_second_pass_runs_when_first_is_undecided():
-    """OCB mixed to weight p = 1/sqrt2 - 1e-3 is separable (R_r = 0 below 1/sqrt2, MATH.md
-    section 5).  A first pass stopped after 5 SCS iterations leaves the primal far from
+    """OCB mixed to weight p = 1/sqrt2 - 1e-3 is separable (R_r = 0 below 1/sqrt2, workers/THEORY.md
+    §5).  A first pass stopped after 5 SCS iterations leaves the primal far from
     feasible, so nothing is certified; the Clarabel second pass certifies it separable."""
     P = ocb_process()
     W = white_noise_mixture(P.scenario, P.matrix, 1 / np.sqrt(2) - 1e-3)
@@ -37,7 +37,7 @@ def test_second_pass_runs_when_first_is_undecided():
 
 
 def test_white_noise_is_certified_separable():
-    """1° is separable (MATH.md section 5); certified in one pass."""
+    """1° is separable (workers/THEORY.md §5); certified in one pass."""
     sc = Scenario.from_dims([2, 2, 2, 2])
     out = certified_analyse(sc, white_noise(sc))
     assert out.passes == 1 and out.certified and out.verdict == "separable"
@@ -51,7 +51,7 @@ def test_bad_quantity_is_rejected():
 
 
 def random_valid_process(scenario: Scenario, rng: np.random.Generator) -> np.ndarray:
-    """Ensemble (2) of MATH.md section 8 (see module docstring)."""
+    """Ensemble (2) of workers/THEORY.md §8 (see module docstring)."""
     mask = valid_mask(scenario)
     c = np.where(mask, rng.standard_normal(mask.size), 0.0)
     c[0] = 0.0

@@ -1,4 +1,4 @@
-"""Random ensembles of MATH.md section 8: validity, the documented construction, seeding."""
+"""Random ensembles of workers/THEORY.md §8: validity, the documented construction, seeding."""
 
 import numpy as np
 import pytest
@@ -19,7 +19,7 @@ WITH_PF = Scenario.from_dims([2, 2, 2, 2], d_past=2, d_future=2)
 @pytest.mark.parametrize("measure", sorted(SAMPLERS))
 def test_every_sample_is_a_valid_process(scenario, measure):
     """Validity conditions (a)-(c) of Araujo et al., NJP 17, 102001 (2015), checked by
-    workers.validity; every measure of MATH.md sec. 8 must produce valid operators."""
+    workers.validity; every measure of workers/THEORY.md §8 must produce valid operators."""
     rng = np.random.default_rng(11)
     for _ in range(3):
         s = get_sampler(measure)(scenario, rng)
@@ -41,7 +41,7 @@ def test_valid_direction_reaches_the_psd_boundary_at_u_one():
 
 
 def test_valid_direction_only_uses_allowed_traceless_elements():
-    """The direction has support only on allowed non-identity patterns (MATH.md sec. 2)."""
+    """The direction has support only on allowed non-identity patterns (workers/THEORY.md §2)."""
     W = valid_direction(WITH_PF, np.random.default_rng(5), u=0.7).matrix
     c = to_coefficients(W - white_noise(WITH_PF), WITH_PF.subsystem_dims)
     assert abs(c[0]) < 1e-10
@@ -66,7 +66,7 @@ def test_wishart_noise_is_just_enough():
 
 
 def test_same_generator_state_same_operator():
-    """Seeding (MATH.md sec. 8): one seed, one operator; different seeds differ."""
+    """Seeding (workers/THEORY.md §8): one seed, one operator; different seeds differ."""
     for measure in SAMPLERS:
         a = get_sampler(measure)(BI, np.random.default_rng(9)).matrix
         b = get_sampler(measure)(BI, np.random.default_rng(9)).matrix
@@ -77,7 +77,7 @@ def test_same_generator_state_same_operator():
 
 def test_combs_and_mixtures_are_separable():
     """Ground truth: causally ordered combs and their mixtures are causally separable
-    (MATH.md sec. 6, OCB 2012): random robustness 0 up to the solver's accuracy."""
+    (workers/THEORY.md §6, OCB 2012): random robustness 0 up to the solver's accuracy."""
     rng = np.random.default_rng(4)
     for sampler in (comb, comb_mixture):
         for _ in range(3):

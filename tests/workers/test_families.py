@@ -30,7 +30,7 @@ def test_qutrit_switch_valid():
 
 
 def test_switch_is_rank_one_with_trace_d_out():
-    """W = |w><w| with <w|w> = 2 d^3 = d_O (MATH.md sec. 6)."""
+    """W = |w><w| with <w|w> = 2 d^3 = d_O (workers/THEORY.md §6)."""
     p = quantum_switch(2)
     assert np.linalg.matrix_rank(p.matrix, tol=1e-9) == 1
     assert np.trace(p.matrix).real == pytest.approx(16)
@@ -42,7 +42,7 @@ SCENARIOS = [([2, 2, 2, 2], 1, 1), ([2, 3, 3, 2], 2, 2), ([2, 2, 2, 2, 2, 2], 1,
 
 @pytest.mark.parametrize("dims,dp,df", SCENARIOS)
 def test_random_combs_valid_and_ordered(dims, dp, df, rng):
-    """A comb of order pi lies in pi's pattern mask (MATH.md sec. 3) and is valid."""
+    """A comb of order pi lies in pi's pattern mask (workers/THEORY.md §3) and is valid."""
     s = Scenario.from_dims(dims, dp, df)
     for order in itertools.permutations(range(s.n_parties)):
         W = random_comb(s, order, rng)

@@ -11,7 +11,7 @@ from workers.games import Game, get_game, list_games
 
 
 def test_registry_lists_the_three_games() -> None:
-    """The registry holds the games named in MATH.md section 7 (common practice: registry)."""
+    """The registry holds the games named in workers/THEORY.md §7 (common practice: registry)."""
     assert list_games() == ["both_guess", "lugano_game", "ocb_guess"]
     for name in list_games():
         assert get_game(name).name == name
@@ -38,7 +38,7 @@ def test_ocb_guess_rules_by_enumeration() -> None:
 
 
 def test_both_guess_and_lugano_rules() -> None:
-    """Branciard et al., NJP 18, 013008 (2016) (both guess); MATH.md sec. 7 (Lugano game)."""
+    """Branciard et al., NJP 18, 013008 (2016) (both guess); workers/THEORY.md §7 (Lugano game)."""
     both = get_game("both_guess")
     assert both.payoff.sum() == 4  # exactly one winning output pair per input pair
     assert both.payoff[1, 0, 0, 1] == 1 and both.payoff[0, 1, 0, 1] == 0

@@ -64,7 +64,7 @@ def test_agrees_with_scs_and_clarabel(rng):
 
 
 def test_ocb_values_and_certificates():
-    """R_r(OCB) = sqrt2 - 1 and R_g = 3 - 2 sqrt2 (MATH.md sec. 5) with the IPM, and its
+    """R_r(OCB) = sqrt2 - 1 and R_g = 3 - 2 sqrt2 (workers/THEORY.md §5) with the IPM, and its
     interior duals and leaves are PSD: the witness has Tr(S W) = -R_r."""
     p = ocb_process()
     r = get_problem(p.scenario, "random", "exact", IPM).solve(p.matrix, keep_certificate=True)

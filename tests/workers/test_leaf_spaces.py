@@ -1,5 +1,5 @@
 """Reduced leaf spaces: W_j = X ⊗ 1_T is PSD iff X is, so a leaf that is the identity on T is
-solved on the smaller space; the optimum does not change (MATH.md sec. 3: a comb never ends
+solved on the smaller space; the optimum does not change (workers/THEORY.md §3: a comb never ends
 on an output, so the last output of every fixed-order leaf is trivial)."""
 
 import numpy as np

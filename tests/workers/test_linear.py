@@ -16,7 +16,7 @@ def test_partial_trace_matches_einsum(rng):
 
 
 def test_trace_replace_commutes_and_is_idempotent(rng):
-    """_X _Y = _Y _X and _X _X = _X (MATH.md sec. 1; Araujo et al. 2015)."""
+    """_X _Y = _Y _X and _X _X = _X (workers/THEORY.md §1; Araujo et al. 2015)."""
     dims = (2, 2, 3)
     G = rng.standard_normal((12, 12))
     a = trace_replace(trace_replace(G, dims, [0]), dims, [2])

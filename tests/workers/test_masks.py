@@ -12,7 +12,7 @@ AI, AO, BI, BO = 1, 2, 3, 4
 
 
 def _LV_bipartite(W, dims):
-    """The bipartite L_V expansion of MATH.md sec. 2 (Araujo et al., NJP 17, 102001 (2015),
+    """The bipartite L_V expansion of workers/THEORY.md §2 (Araujo et al., NJP 17, 102001 (2015),
     appendix), written with dense trace-and-replace maps."""
     t = lambda X: trace_replace(W, dims, X)  # noqa: E731
     return (t([AO]) + t([BO]) - t([AO, BO]) - t([BI, BO]) + t([AO, BI, BO]) - t([AI, AO])
@@ -31,7 +31,7 @@ def test_valid_mask_is_LV(rng):
 
 
 def test_pattern_counts_two_qubit_parties():
-    """88 of 256 Pauli strings valid, 52 in each fixed order, 16 in both (MATH.md sec. 2, 5
+    """88 of 256 Pauli strings valid, 52 in each fixed order, 16 in both (workers/THEORY.md §2, 5
     counting checks)."""
     s = Scenario.from_dims([2, 2, 2, 2])
     v, ab, ba = valid_mask(s), comb_mask(s, (0, 1)), comb_mask(s, (1, 0))
@@ -40,7 +40,7 @@ def test_pattern_counts_two_qubit_parties():
 
 
 def test_comb_mask_is_order_constraint(rng):
-    """A<B comb conditions W = _{BO} W and _{BI BO} W = _{AO BI BO} W (MATH.md sec. 3,
+    """A<B comb conditions W = _{BO} W and _{BI BO} W = _{AO BI BO} W (workers/THEORY.md §3,
     Araujo et al. 2015): the masked projection satisfies them, and the mask keeps exactly the
     operators that satisfy them (checked on the projection of a random operator)."""
     s = Scenario.from_dims([2, 2, 3, 2])
@@ -55,7 +55,7 @@ def test_comb_mask_is_order_constraint(rng):
 
 
 def test_valid_dimension_formula():
-    """dim of the valid subspace (MATH.md sec. 4, derived formula; 1900 for three qubit
+    """dim of the valid subspace (workers/THEORY.md §4, derived formula; 1900 for three qubit
     parties)."""
     for dims, dp, df in [([2] * 6, 1, 1), ([2, 3, 2, 2], 2, 1), ([2, 2, 3, 1], 1, 2)]:
         s = Scenario.from_dims(dims, dp, df)

@@ -17,7 +17,7 @@ SQ2 = np.sqrt(2)
 
 
 def test_ocb_random_robustness():
-    """R_r(OCB) = sqrt2 - 1 (MATH.md sec. 5, from |alpha| + |beta| <= 1; process from
+    """R_r(OCB) = sqrt2 - 1 (workers/THEORY.md §5, from |alpha| + |beta| <= 1; process from
     Oreshkov, Costa, Brukner 2012; measure from Araujo et al., NJP 17, 102001 (2015))."""
     p = ocb_process()
     r = get_problem(p.scenario, "random", "exact", OPTS).solve(p.matrix)
@@ -26,7 +26,7 @@ def test_ocb_random_robustness():
 
 
 def test_ocb_generalized_robustness():
-    """R_g(OCB) = 3 - 2 sqrt2 (MATH.md sec. 5)."""
+    """R_g(OCB) = 3 - 2 sqrt2 (workers/THEORY.md §5)."""
     p = ocb_process()
     r = get_problem(p.scenario, "generalized", "exact", OPTS).solve(p.matrix)
     assert r.value == pytest.approx(3 - 2 * SQ2, abs=1e-6)
@@ -58,7 +58,7 @@ def test_ocb_witness_is_nonnegative_on_combs(rng):
 
 
 def test_white_noise_has_zero_robustness():
-    """1° is separable: R_r = R_g = 0 (MATH.md sec. 5)."""
+    """1° is separable: R_r = R_g = 0 (workers/THEORY.md §5)."""
     s = Scenario.from_dims([2, 2, 3, 2])
     for kind in ("random", "generalized"):
         r = get_problem(s, kind, "exact", OPTS).solve(white_noise(s))
@@ -66,7 +66,7 @@ def test_white_noise_has_zero_robustness():
 
 
 def test_noise_threshold_of_ocb():
-    """p W_OCB + (1-p) 1° is separable iff p <= 1/sqrt2 (MATH.md sec. 5): its robustness is
+    """p W_OCB + (1-p) 1° is separable iff p <= 1/sqrt2 (workers/THEORY.md §5): its robustness is
     (1 + R_r) p - 1 in closed form, i.e. p sqrt2 - 1 above the threshold."""
     p = ocb_process()
     prob = get_problem(p.scenario, "random", "exact", OPTS)
@@ -76,7 +76,7 @@ def test_noise_threshold_of_ocb():
 
 
 def test_combs_and_mixtures_have_zero_robustness(rng):
-    """Causally ordered combs and their mixtures are separable (MATH.md sec. 6)."""
+    """Causally ordered combs and their mixtures are separable (workers/THEORY.md §6)."""
     s = Scenario.from_dims([2, 2, 2, 2])
     prob = get_problem(s, "random", "exact", OPTS)
     combs = [random_comb(s, o, rng) for o in [(0, 1), (1, 0)] * 3]
@@ -85,7 +85,7 @@ def test_combs_and_mixtures_have_zero_robustness(rng):
 
 
 def test_tripartite_combs_separable(rng):
-    """Tripartite combs of all 6 orders, and a mixture, are separable (MATH.md sec. 6)."""
+    """Tripartite combs of all 6 orders, and a mixture, are separable (workers/THEORY.md §6)."""
     s = Scenario.from_dims([2, 2, 2, 2, 2, 2])
     prob = get_problem(s, "random", "exact", SolverOptions(eps_abs=1e-7, eps_rel=1e-7))
     combs = [random_comb(s, o, rng) for o in itertools.permutations(range(3))]

@@ -27,13 +27,13 @@ def kron(*ops: np.ndarray) -> np.ndarray:
 
 
 def ocb_process() -> np.ndarray:
-    """OCB process, order AI AO BI BO (OCB, Nat. Commun. 3, 1092 (2012); MATH.md sec. 6)."""
+    """OCB process, order AI AO BI BO (OCB, Nat. Commun. 3, 1092 (2012); workers/THEORY.md §6)."""
     return (kron(I2, I2, I2, I2)
             + (kron(I2, Z, Z, I2) + kron(Z, I2, X, Z)) / np.sqrt(2)) / 4
 
 
 def ocb_instruments() -> list[np.ndarray]:
-    """MATH.md section 7's instruments in the encoding of workers.games.ocb_guess.
+    """workers/THEORY.md §7's instruments in the encoding of workers.games.ocb_guess.
 
     Alice, bit x, guess a: xi_a ⊗ xi_x.  Bob, input y = 2b + b', guess g: xi_g ⊗ 1/2 when
     b' = 0, eta_g ⊗ xi_{b xor g} when b' = 1.
@@ -51,7 +51,7 @@ def random_qubit_process(rng: np.random.Generator, strength: float) -> np.ndarra
     """Random valid bipartite qubit process: 1/4 (1 + t H), H on the allowed Pauli strings.
 
     A string is allowed iff it is the identity or some party has it nontrivial on A_I and
-    trivial on A_O (MATH.md sec. 2, from Araujo et al., NJP 17, 102001 (2015)); t is
+    trivial on A_O (workers/THEORY.md §2, from Araujo et al., NJP 17, 102001 (2015)); t is
     ``strength`` times the largest value keeping W positive.
     """
     H = np.zeros((16, 16), dtype=complex)
@@ -63,7 +63,7 @@ def random_qubit_process(rng: np.random.Generator, strength: float) -> np.ndarra
 
 
 def lugano_process() -> np.ndarray:
-    """Lugano process (Baumeler & Wolf, NJP 18, 013036 (2016); MATH.md sec. 6), 64x64."""
+    """Lugano process (Baumeler & Wolf, NJP 18, 013036 (2016); workers/THEORY.md §6), 64x64."""
     diag = np.zeros((2,) * 6)
     for a, b, c in itertools.product(range(2), repeat=3):
         diag[(1 - b) & c, a, (1 - c) & a, b, (1 - a) & b, c] = 1.0
@@ -71,7 +71,7 @@ def lugano_process() -> np.ndarray:
 
 
 def test_ocb_instruments_reach_ocb_value() -> None:
-    """MATH.md sec. 7 instruments with the OCB process win with (2+sqrt2)/4 (OCB 2012), with
+    """workers/THEORY.md §7 instruments with the OCB process win with (2+sqrt2)/4 (OCB 2012), with
     p = Tr[W (M^A ⊗ M^B)] and no transpose (all operators are real symmetric)."""
     value = process_value(ocb_process(), ocb_instruments(), QUBITS, get_game("ocb_guess"))
     assert value == pytest.approx(OCB_VALUE, abs=1e-12)
@@ -111,7 +111,7 @@ def test_seesaw_with_scs_agrees() -> None:
 @pytest.mark.parametrize("p", [1.0, 0.85, 1 / np.sqrt(2), 0.5])
 def test_white_noise_mixture_value(p: float) -> None:
     """p W_OCB + (1-p) 1/4 reaches p(2+sqrt2)/4 + (1-p)/2, which is 3/4 at p = 1/sqrt2
-    (MATH.md sec. 5 cross-check; noise alone gives independent outputs, value 1/2)."""
+    (workers/THEORY.md §5 cross-check; noise alone gives independent outputs, value 1/2)."""
     W = p * ocb_process() + (1 - p) * np.eye(16) / 4
     result = seesaw(W, QUBITS, get_game("ocb_guess"), n_starts=2, seed=5)
     assert result.value == pytest.approx(p * OCB_VALUE + (1 - p) / 2, abs=1e-6)
@@ -121,7 +121,7 @@ def test_white_noise_mixture_value(p: float) -> None:
 def test_random_processes_never_exceed_ocb_value() -> None:
     """See-saw on random valid qubit processes stays <= (2+sqrt2)/4, the maximum over qubit
     processes for this game stated in that line of work (Brukner 2014; from memory).  Also the
-    behaviours are normalised probabilities (validity, MATH.md sec. 2 / 7)."""
+    behaviours are normalised probabilities (validity, workers/THEORY.md §2 / 7)."""
     rng = np.random.default_rng(2015)
     game = get_game("ocb_guess")
     for strength in (0.5, 0.9, 1.0):
@@ -147,7 +147,7 @@ def test_local_complex_unitary_leaves_value_unchanged() -> None:
 def test_lugano_process_wins_with_certainty() -> None:
     """Lugano process (Baumeler & Wolf 2016) wins the Lugano game with probability 1 using
     classical instruments (measure A_I in Z, answer it, send own bit), above the causal bound
-    3/4 (MATH.md sec. 7); see-saw also finds 1."""
+    3/4 (workers/THEORY.md §7); see-saw also finds 1."""
     W = lugano_process()
     dims = [(2, 2)] * 3
     game = get_game("lugano_game")
@@ -159,7 +159,7 @@ def test_lugano_process_wins_with_certainty() -> None:
 
 
 def _quantum_switch() -> np.ndarray:
-    """Quantum switch, P (2 qubits), AI AO BI BO, F (2 qubits) (MATH.md sec. 6; Araujo et al.
+    """Quantum switch, P (2 qubits), AI AO BI BO, F (2 qubits) (workers/THEORY.md §6; Araujo et al.
     2015).  Uses workers.families.quantum_switch when that module exists; the fallback orders
     P = (P_t, P_c), F = (F_t, F_c)."""
     try:
@@ -189,7 +189,7 @@ def test_quantum_switch_does_not_violate() -> None:
 
 def test_normalise_and_random_instruments_are_valid() -> None:
     """Random instruments are PSD and trace-preserving on summing outcomes (definition,
-    MATH.md sec. 7), checked with an independent einsum partial trace."""
+    workers/THEORY.md §7), checked with an independent einsum partial trace."""
     rng = np.random.default_rng(1)
     inst = random_instrument(rng, 3, 2, 2, 2)
     assert np.linalg.eigvalsh(inst).min() > -1e-12
@@ -199,7 +199,7 @@ def test_normalise_and_random_instruments_are_valid() -> None:
 
 def test_white_noise_in_unequal_dimensions() -> None:
     """White noise 1/d_I with d_in = 3, d_out = 2 gives independent outputs (definition of 1°,
-    MATH.md sec. 5): product behaviours are causal, so 'both guess' stays at its causal bound
+    workers/THEORY.md §5): product behaviours are causal, so 'both guess' stays at its causal bound
     1/2 (Branciard et al. 2016), which a = x, b = y reaches; also checks instrument
     normalisation for d_in != d_out with an einsum partial trace."""
     result = seesaw(np.eye(36) / 9, [(3, 2), (3, 2)], get_game("both_guess"), n_starts=1)

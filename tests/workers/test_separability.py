@@ -34,7 +34,7 @@ def test_switch_nonseparable():
 
 
 def test_separable_verdicts(rng):
-    """Combs and white noise are separable (MATH.md sec. 6)."""
+    """Combs and white noise are separable (workers/THEORY.md §6)."""
     p = ocb_process()
     for W in [white_noise(p.scenario), random_comb(p.scenario, (1, 0), rng)]:
         assert analyse(p.scenario, W).verdict == "separable"

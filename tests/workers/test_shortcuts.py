@@ -13,7 +13,7 @@ from workers.validity import white_noise
 
 
 def test_shortcut_agrees_with_sdp(rng):
-    """Combs are separable with R_r = R_g = 0 (MATH.md sec. 6) by the shortcut and by the SDP
+    """Combs are separable with R_r = R_g = 0 (workers/THEORY.md §6) by the shortcut and by the SDP
     (force_solve)."""
     s = Scenario.from_dims([2, 2, 3, 2])
     for order in [(0, 1), (1, 0)]:

@@ -30,7 +30,7 @@ def test_span_is_valid_subspace(dims, dp, df):
 
 def test_bipartite_freedom_is_the_overlap():
     """For two qubit parties W^{A<B} is free exactly on the 16 patterns both orders allow
-    (MATH.md sec. 5 counting check)."""
+    (workers/THEORY.md §5 counting check)."""
     assert _span_and_free(Scenario.from_dims([2, 2, 2, 2]), "exact")[1] == 16
 
 

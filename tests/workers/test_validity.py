@@ -19,7 +19,7 @@ def test_projector_idempotent_trace_preserving(rng):
 
 
 def test_white_noise_valid():
-    """1° = 1/d_I is a valid process in every scenario (MATH.md sec. 5)."""
+    """1° = 1/d_I is a valid process in every scenario (workers/THEORY.md §5)."""
     for s in [Scenario.from_dims([2, 2, 2, 2]), Scenario.from_dims([3, 2], 2, 3)]:
         assert check_validity(s, white_noise(s)).valid
 
