@@ -121,6 +121,7 @@ class Plan:
             W = self.files[rep]
         else:
             params = {"valid_direction": {"u": fam.u}, "wishart": {"rank": fam.rank},
+                      "hs_volume": {"steps": fam.steps},
                       "comb": {"order": fam.order, "memory_dim": fam.memory_dim},
                       "comb_mixture": {"n_combs": fam.n_combs, "memory_dim": fam.memory_dim}}
             drawn = get_sampler(fam.measure)(self.scenario, rng, **params[fam.measure])

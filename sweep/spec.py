@@ -63,10 +63,12 @@ class EnsembleFamily(Strict):
     """A random ensemble with its measure named (workers/THEORY.md §8; workers/ensembles.py)."""
 
     kind: Literal["ensemble"]
-    measure: Literal["valid_direction", "wishart", "comb", "comb_mixture"] = Field(
+    measure: Literal["valid_direction", "wishart", "hs_volume", "comb", "comb_mixture"] = Field(
         description="the sampling measure, documented in workers/ensembles.py")
     u: float | None = Field(None, ge=0.0, le=1.0, description=(
         "valid_direction: fraction of the distance to the PSD boundary (null = uniform)"))
+    steps: int | None = Field(None, ge=0, description=(
+        "hs_volume: billiard-walk steps per sample from 1° (null = 100)"))
     rank: int | None = Field(None, ge=1, description="wishart: Ginibre columns (null = full)")
     order: list[int] | None = Field(None, description="comb: party order (null = uniform)")
     memory_dim: int = Field(2, ge=1, description="comb, comb_mixture: memory dimension")

@@ -16,7 +16,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from .spec import Spec
 
 NON_AXIS_FIELDS = {"kind", "name", "measure", "order", "paths", "dataset"}
-RANDOM_MEASURES = ("valid_direction", "wishart", "comb", "comb_mixture")
+RANDOM_MEASURES = ("valid_direction", "wishart", "hs_volume", "comb", "comb_mixture")
 
 
 def resolve_scenario(spec: "Spec") -> Scenario:

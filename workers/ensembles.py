@@ -19,6 +19,13 @@ Measures
     coefficients) and rescaled to trace d_O, giving X_v.  Then W = (1 - q) X_v + q 1° with the
     smallest q in [0, 1] making W PSD: q = max(0, -lambda / (1/d_I - lambda)), lambda =
     lambda_min(X_v).  aux = q.
+``hs_volume``
+    Uniform with respect to Hilbert-Schmidt (Lebesgue) volume on the valid set {W >= 0,
+    Tr W = d_O, L_V(W) = W}, by a billiard walk from 1° of ``steps`` steps along
+    HS-isotropic directions of the traceless valid subspace (:mod:`workers.hs_volume`,
+    workers/THEORY.md §8; default ``steps`` = 100).
+    aux = the radial fraction r of W (distance from 1° over the distance to the PSD boundary
+    along the same ray), whose law under the uniform measure is P(r <= x) = x^n.
 ``comb``
     A causally ordered comb of Haar-random isometries with a memory of ``memory_dim``
     (:func:`workers.families.random_comb`); the order is given or uniform over the N!
@@ -40,6 +47,7 @@ import numpy as np
 
 from .basis import from_coefficients, to_coefficients
 from .families import random_comb
+from .hs_volume import DEFAULT_STEPS, billiard_walk, finish, radial_fraction
 from .masks import valid_mask
 from .scenario import Scenario
 from .validity import white_noise
@@ -104,6 +112,22 @@ def wishart(scenario: Scenario, rng: np.random.Generator, rank: int | None = Non
     return Sample((1 - q) * X + q * white_noise(scenario), q)
 
 
+def hs_volume(scenario: Scenario, rng: np.random.Generator, steps: int | None = None
+              ) -> Sample:
+    """Hilbert-Schmidt-uniform valid process operator by the billiard walk (module doc).
+
+    Parameters
+    ----------
+    steps
+        Billiard-walk steps from 1°, >= 0 (None: :data:`workers.hs_volume.DEFAULT_STEPS`).
+    """
+    n_steps = DEFAULT_STEPS if steps is None else int(steps)
+    if n_steps < 0:
+        raise ValueError(f"hs_volume: steps={steps!r}, expected an integer >= 0 or None")
+    W = finish(scenario, billiard_walk(scenario, rng, n_steps).point)
+    return Sample(W, radial_fraction(scenario, W))
+
+
 def _orders(n: int) -> list[tuple[int, ...]]:
     return list(itertools.permutations(range(n)))
 
@@ -136,6 +160,7 @@ def comb_mixture(scenario: Scenario, rng: np.random.Generator, n_combs: int = 2,
 SAMPLERS: dict[str, Callable[..., Sample]] = {
     "valid_direction": valid_direction,
     "wishart": wishart,
+    "hs_volume": hs_volume,
     "comb": comb,
     "comb_mixture": comb_mixture,
 }
