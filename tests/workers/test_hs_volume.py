@@ -77,6 +77,15 @@ def test_walk_is_seeded_and_counts_reflections():
     assert a.reflections > 20 and a.stays == 0
 
 
+def test_steps_with_too_many_reflections_stay_put():
+    """A step past the reflection limit leaves the point unchanged (the rule that keeps the
+    kernel symmetric, workers/THEORY.md §8): with paths far longer than the body and no
+    reflection allowed, every step stays at 1°."""
+    walk = billiard_walk(BI, np.random.default_rng(2), 4, tau=100.0, max_reflections=0)
+    assert walk.stays == 4 and walk.reflections == 4
+    assert np.array_equal(walk.point, white_noise(BI))
+
+
 def test_zero_steps_is_white_noise_and_radial_fraction_scales():
     """steps = 0 stays at 1° (r = 0); r is linear along a ray and 1 on the boundary."""
     s = hs_volume(BI, np.random.default_rng(0), steps=0)
