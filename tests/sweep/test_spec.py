@@ -108,7 +108,7 @@ def test_spec_hash_ignores_run_and_tracks_science():
 
 
 def test_precedence_cli_over_profile_over_spec(tmp_path):
-    """STYLE.md: CLI > profile > spec > default, resolved in one function."""
+    """Precedence CLI > profile > spec > default, resolved in one function."""
     prof = tmp_path / "p.yaml"
     prof.write_text(yaml.safe_dump({"profiles": {"big": {"workers": 6, "samples_per_task": 3}}}))
     spec_run = RunSpec(workers=2, samples_per_task=5, progress=False)

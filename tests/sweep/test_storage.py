@@ -1,5 +1,5 @@
 """The HDF5 results file: self-describing attributes, resume, refusal of a different spec,
-and a driver killed with SIGKILL mid-sweep (LIBRARY-FACTS.md: an unflushed HDF5 file killed
+and a driver killed with SIGKILL mid-sweep (measured with h5py: an unflushed HDF5 file killed
 mid-write was unreadable; flushed after each chunk it was readable)."""
 
 import json
