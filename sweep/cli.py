@@ -14,7 +14,15 @@ import sys
 from .errors import UserError
 
 COMMAND_MODULES = ("sweep.cmd_check", "sweep.cmd_games", "sweep.cmd_run", "sweep.cmd_summary",
-                   "sweep.cmd_plot", "sweep.cmd_demo", "sweep.cmd_verify")
+                   "sweep.cmd_plot", "sweep.cmd_demo", "sweep.cmd_verify", "sweep.cmd_remote")
+
+
+def _version() -> str:
+    from importlib import metadata
+    try:
+        return metadata.version("orderless")
+    except metadata.PackageNotFoundError:  # pragma: no cover - a plain checkout
+        return "unknown"
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -22,6 +30,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="orderless",
         description="Causal separability, robustness and causal inequalities of process matrices.",
     )
+    parser.add_argument("--version", action="version", version=f"orderless {_version()}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for name in COMMAND_MODULES:
         importlib.import_module(name).register(sub)
