@@ -31,6 +31,15 @@ def ocb_grid(weights, **compute):
             "run": {"cluster": "serial", "progress": False}}
 
 
+@pytest.fixture(scope="session")
+def sshd(tmp_path_factory):
+    """A real OpenSSH server on loopback (tests/sweep/sshd_server.py), one per test session."""
+    from tests.sweep.sshd_server import start_sshd, stop_sshd
+    server = start_sshd(tmp_path_factory.mktemp("sshd"))
+    yield server
+    stop_sshd(server)
+
+
 @pytest.fixture
 def chdir_tmp(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)

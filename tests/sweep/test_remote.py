@@ -20,17 +20,11 @@ import pytest
 import yaml
 
 from sweep.storage import read_results
-from tests.sweep.sshd_server import ALIAS, start_sshd, stop_sshd
+from tests.sweep.sshd_server import ALIAS
 
 ORDERLESS = str(Path(sys.executable).parent / "orderless")
 NASTY = "a dir; $(touch pwned) 'q'"
 
-
-@pytest.fixture(scope="module")
-def sshd(tmp_path_factory):
-    server = start_sshd(tmp_path_factory.mktemp("sshd"))
-    yield server
-    stop_sshd(server)
 
 
 @pytest.fixture

@@ -8,16 +8,10 @@ import pytest
 
 from sweep.errors import UserError
 from sweep.ssh import Remote, rjoin, rpath, sh_words
-from tests.sweep.sshd_server import ALIAS, free_port, start_sshd, stop_sshd
+from tests.sweep.sshd_server import ALIAS, free_port
 
 NASTY = "dir with space; $(touch pwned) `x` 'q' \"d\" & | *"
 
-
-@pytest.fixture(scope="module")
-def sshd(tmp_path_factory):
-    server = start_sshd(tmp_path_factory.mktemp("sshd"))
-    yield server
-    stop_sshd(server)
 
 
 @pytest.fixture
