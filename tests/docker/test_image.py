@@ -8,11 +8,11 @@ import re
 import pytest
 
 from .compare import assert_same_results, package_versions
-from .oci_archive import read_archive
+from .image_archive import read_archive
 from .podman_host import IMAGE_UID, REPO, image_id, podman_run, run
 
 pytestmark = pytest.mark.container
-ARCHIVE = "orderless.oci.tar"  # the name README's save command writes and the .def reads
+ARCHIVE = "orderless.docker.tar"  # the name README's save command writes, the .def reads
 
 
 def test_orderless_runs_as_non_root_with_one_blas_thread(image, podman_env):
@@ -48,18 +48,18 @@ def _def_header(path) -> dict[str, str]:
     return header
 
 
-def test_oci_archive_for_apptainer(image, podman_env, tmp_path):
-    """`podman save --format oci-archive` writes what docker/orderless.def bootstraps from:
-    every blob matches its digest, the layers decompress to exactly the layers of the image
-    the other tests run (same configuration digest = image id), the non-root user, the
-    pinned threads and the `orderless` entry point are in it, and podman runs `orderless`
-    from the archive.  (Apptainer itself is not installed here, so the .sif is not built.)"""
-    assert _def_header(REPO / "docker" / "orderless.def") == {"Bootstrap": "oci-archive",
+def test_image_archive_for_apptainer(image, podman_env, tmp_path):
+    """`podman save --format docker-archive` writes what docker/orderless.def bootstraps
+    from: its configuration hashes to the id of the image the other tests run and its layers
+    to that image's layers; the non-root user, the pinned threads and the `orderless` entry
+    point are in it, and podman runs `orderless` from the archive.  (Apptainer itself is
+    not installed here, so the .sif is not built.)"""
+    assert _def_header(REPO / "docker" / "orderless.def") == {"Bootstrap": "docker-archive",
                                                               "From": ARCHIVE}
     archive = tmp_path / ARCHIVE
-    run(["podman", "save", "--format", "oci-archive", "-o", archive, image], podman_env)
+    run(["podman", "save", "--format", "docker-archive", "-o", archive, image], podman_env)
     got = read_archive(str(archive))
-    assert got.config_digest == f"sha256:{image_id(image, podman_env)}"
+    assert got.image_id == image_id(image, podman_env)
     layers = json.loads(run(["podman", "image", "inspect", "--format",
                              "{{json .RootFS.Layers}}", image], podman_env))
     assert got.diff_ids == layers
@@ -68,4 +68,4 @@ def test_oci_archive_for_apptainer(image, podman_env, tmp_path):
     assert "OPENBLAS_NUM_THREADS=1" in config["Env"]
     assert any(e.startswith("PATH=/opt/venv/bin:") for e in config["Env"])
     assert "opt/venv/bin/orderless" in got.paths
-    assert "usage: orderless" in podman_run(podman_env, [f"oci-archive:{archive}"])
+    assert "usage: orderless" in podman_run(podman_env, [f"docker-archive:{archive}"])
