@@ -48,14 +48,16 @@ def podman_env(tmp_path_factory) -> dict[str, str]:
 
 @pytest.fixture(scope="session")
 def image(podman_env, tmp_path_factory) -> str:
-    """The project image, built from the current checkout (podman's layer cache makes a
-    rebuild with unchanged dependencies quick); the build it replaces is removed."""
+    """The id of the project image, built from the current checkout (podman's layer cache
+    makes a rebuild with unchanged dependencies quick); the build it replaces is removed."""
     base = ensure_base(podman_env)
     before = image_id(IMAGE_TAG, podman_env)
-    run(build_command(tmp_path_factory.mktemp("build"), base), podman_env, timeout=1200)
-    if before and before != image_id(IMAGE_TAG, podman_env):
+    workdir = tmp_path_factory.mktemp("build")
+    run(build_command(workdir, base), podman_env, timeout=1200)
+    built = (workdir / "image-id").read_text().strip().removeprefix("sha256:")
+    if before and before != built:
         quiet(["podman", "rmi", before], podman_env)
-    return IMAGE_TAG
+    return built
 
 
 def _owned_by_image_user(path: Path) -> Path:

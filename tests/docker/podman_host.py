@@ -4,6 +4,7 @@ from the host's own pip configuration (nothing site-specific lives in docker/Doc
 
 from __future__ import annotations
 
+import hashlib
 import importlib.metadata
 import itertools
 import os
@@ -19,7 +20,9 @@ import pytest
 
 REPO = Path(__file__).resolve().parents[2]
 BASE_TAG = "localhost/orderless-test-base:bookworm-python3-venv"
-IMAGE_TAG = "localhost/orderless-test:latest"
+# One tag per checkout, so that test runs from two worktrees never retag or remove each
+# other's image (they share podman's layer cache).
+IMAGE_TAG = "localhost/orderless-test:" + hashlib.sha256(str(REPO).encode()).hexdigest()[:12]
 IMAGE_UID = 1000  # docker/Dockerfile's default UID
 _names = itertools.count()
 # runc: Debian's crun stops on the hybrid cgroups here; podman's default ulimits fail without
@@ -158,7 +161,8 @@ def _local_dirs(key: str, value: str) -> list[str]:
 
 
 def build_command(workdir: Path, base: str) -> list[str]:
-    """``podman build`` of docker/Dockerfile from ``base``, with the host's pip settings
+    """``podman build`` of docker/Dockerfile from ``base`` (the new image's id goes to
+    ``workdir/image-id``), with the host's pip settings
     (as the pip.conf secret), its CA bundle (the ca-certificates secret), the host
     interpreter's package versions as constraints (the image then computes with the very
     same numerical stack as the host, so results can be compared bit for bit) and read-only
@@ -177,7 +181,8 @@ def build_command(workdir: Path, base: str) -> list[str]:
         mounts.update(d for d in _local_dirs(key, value) if Path(d).is_dir())
     cmd = ["podman", "build", "--pull=never", "--network", "host", "-f",
            REPO / "docker" / "Dockerfile", "--build-arg", f"BASE={base}",
-           "--secret", f"id=pip.conf,src={workdir / 'pip.conf'}", "-t", IMAGE_TAG]
+           "--secret", f"id=pip.conf,src={workdir / 'pip.conf'}", "-t", IMAGE_TAG,
+           "--iidfile", workdir / "image-id"]
     if (ca := ca_bundle(settings)) is not None:
         cmd += ["--secret", f"id=ca-certificates,src={ca}"]
     for d in sorted(mounts):
