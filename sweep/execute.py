@@ -12,19 +12,18 @@ from __future__ import annotations
 
 import contextlib
 import math
-import os
 import sys
 import time
 import uuid
 from dataclasses import dataclass
 from typing import Iterator, TextIO
 
-from .clusters import open_client
+from .clusters import expected_workers, open_client
 from .plan import Plan
 from .spec import Spec
 from .spec_run import RunSpec
 from .storage import ResultFile
-from .task import run_samples, warm_up
+from .task import run_samples
 
 
 @dataclass(frozen=True)
@@ -82,8 +81,7 @@ def _submit_all(client, spec_json: str, tasks: list[list[int]]):
 def _run_dask(store: ResultFile, spec_json: str, tasks, run: RunSpec, bar: Progress) -> None:
     from distributed import as_completed
     t0 = time.monotonic()
-    with open_client(run) as client:
-        client.run(warm_up, spec_json)  # imports and compiled problems, on every worker
+    with open_client(run, spec_json) as client:  # workers warmed up as they join
         store.run_entry["startup_s"] = round(time.monotonic() - t0, 3)
         with _compute_phase(store):
             futures = _submit_all(client, spec_json, tasks)
@@ -123,10 +121,7 @@ def auto_task_size(n_missing: int, run: RunSpec) -> int:
     batched solver (32) while leaving at least 8 tasks per worker for load balance."""
     if run.cluster == "serial":
         return MAX_AUTO_TASK
-    if run.cluster == "jobqueue" and run.jobqueue is not None:
-        workers = run.jobqueue.jobs * run.jobqueue.processes
-    else:
-        workers = run.workers or os.cpu_count() or 1
+    workers = expected_workers(run)
     return max(1, min(MAX_AUTO_TASK, math.ceil(n_missing / (TASKS_PER_WORKER * workers))))
 
 

@@ -1,0 +1,106 @@
+"""A sweep inside one SLURM allocation (``run.cluster: allocation``).
+
+Many sites forbid long processes on login nodes, so the whole sweep runs as one batch job:
+``sbatch -n N --wrap "orderless run SPEC -o OUT.h5 --cluster allocation"``.  The driver (in
+the batch step) hosts the scheduler and starts one job step of single-threaded workers, one
+per allocated task, with ``srun``; the workers get the cluster settings and the TLS
+credentials through their environment.  A cancelled job leaves a readable file: the same line
+resubmitted computes only what is missing.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import shlex
+import signal
+import subprocess
+import sys
+from typing import Iterator
+
+from .errors import UserError
+from .security import is_loopback
+from .spec_run import AllocationSpec, RunSpec
+
+
+# The workers share the job's output with the driver: their routine INFO lines (start, plugin,
+# close) would bury the summary, so only their warnings and errors are shown.
+WORKER_LOGS = {"DASK_LOGGING__DISTRIBUTED": "warning"}
+
+
+def allocated_tasks() -> int:
+    """Tasks of the current SLURM allocation (``SLURM_NTASKS``); 1 when unknown."""
+    for name in ("SLURM_NTASKS", "SLURM_NPROCS"):
+        value = os.environ.get(name, "")
+        if value.isdigit() and int(value) > 0:
+            return int(value)
+    return 1
+
+
+def srun_command(address: str, n: int, spec: AllocationSpec) -> list[str]:
+    """The srun line that starts ``n`` single-threaded workers of the scheduler ``address``,
+    each named after its job and task and bound to its node's host name (or interface)."""
+    worker = [sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1",
+              "--no-dashboard", "--death-timeout", "60"]
+    worker += ["--interface", spec.interface] if spec.interface else []
+    where = "" if spec.interface else ' --host "$(hostname)"'
+    line = (f'exec {shlex.join(worker)}{where} '
+            '--name "slurm-$SLURM_JOB_ID.$SLURM_PROCID"')
+    return ["srun", f"--ntasks={n}", "--cpus-per-task=1", "--kill-on-bad-exit=0",
+            *spec.srun_args, "sh", "-c", line]
+
+
+def _interrupt(signum, frame):  # noqa: ARG001 - signal handler signature
+    raise KeyboardInterrupt
+
+
+@contextlib.contextmanager
+def allocation_cluster(run: RunSpec, security=None, worker_env=None) -> Iterator:
+    """A scheduler in this process and ``srun`` workers, one per task of the allocation.
+
+    SIGTERM (``scancel``, the walltime) is turned into KeyboardInterrupt while it runs, so the
+    sweep closes its file as interrupted.
+    """
+    from distributed import LocalCluster
+
+    from .clusters import bind_host, http_options
+    if not os.environ.get("SLURM_JOB_ID"):
+        raise UserError("run.cluster='allocation' runs inside a SLURM allocation (sbatch or "
+                        "salloc): SLURM_JOB_ID is not set")
+    spec = run.allocation or AllocationSpec()
+    host = bind_host(spec.scheduler_host, spec.interface, "run.allocation")
+    nodes = os.environ.get("SLURM_JOB_NUM_NODES", "1")
+    if nodes.isdigit() and int(nodes) > 1 and is_loopback(host):
+        raise UserError(f"run.cluster='allocation': the scheduler host {host!r} is loopback "
+                        f"but the allocation spans {nodes} nodes; set run.allocation.interface "
+                        "or scheduler_host")
+    n = run.workers or allocated_tasks()
+    cluster = LocalCluster(n_workers=0, host=host, scheduler_port=0, security=security,
+                           protocol="tls://" if security else "tcp://",
+                           scheduler_kwargs=http_options(run, host), dashboard_address=None)
+    env = {**os.environ, **(worker_env or {}), **WORKER_LOGS}
+    previous = signal.signal(signal.SIGTERM, _interrupt)
+    srun = None
+    try:
+        srun = subprocess.Popen(srun_command(cluster.scheduler_address, n, spec), env=env,
+                                stdin=subprocess.DEVNULL)
+        cluster.srun = srun
+        yield cluster
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+        cluster.close()  # the workers are told to close, and leave; srun then ends
+        if srun is not None:
+            _stop(srun)
+
+
+def _stop(srun: subprocess.Popen) -> None:
+    """Wait up to 10 s for the worker step to end, then stop it by its srun's PID (SIGTERM:
+    srun cancels the step; SIGKILL if srun is still there 5 s later)."""
+    for sig, wait in ((None, 10), (signal.SIGTERM, 5), (signal.SIGKILL, 5)):
+        if sig is not None:
+            srun.send_signal(sig)
+        try:
+            srun.wait(timeout=wait)
+            return
+        except subprocess.TimeoutExpired:
+            continue
