@@ -26,6 +26,7 @@ from .spec_run import AllocationSpec, RunSpec
 # The workers share the job's output with the driver: their routine INFO lines (start, plugin,
 # close) would bury the summary, so only their warnings and errors are shown.
 WORKER_LOGS = {"DASK_LOGGING__DISTRIBUTED": "warning"}
+STEP_NAME = "orderless-workers"  # the name of the workers' job step (to signal it)
 
 
 def allocated_tasks() -> int:
@@ -39,14 +40,20 @@ def allocated_tasks() -> int:
 
 def srun_command(address: str, n: int, spec: AllocationSpec) -> list[str]:
     """The srun line that starts ``n`` single-threaded workers of the scheduler ``address``,
-    each named after its job and task and bound to its node's host name (or interface)."""
+    each named after its job and task and bound to its node's host name (or interface).
+
+    The workers run without a nanny: SLURM, not a nanny, holds the step to its memory, and a
+    signal to the step reaches the worker itself, which then closes gracefully (a nanny's
+    worker process got the signal too and hung in its close).  A worker that dies is not
+    restarted; dask hands its tasks to the others."""
     worker = [sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1",
-              "--no-dashboard", "--death-timeout", "60"]
+              "--no-nanny", "--no-dashboard", "--death-timeout", "60"]
     worker += ["--interface", spec.interface] if spec.interface else []
     where = "" if spec.interface else ' --host "$(hostname)"'
     line = (f'exec {shlex.join(worker)}{where} '
             '--name "slurm-$SLURM_JOB_ID.$SLURM_PROCID"')
     return ["srun", f"--ntasks={n}", "--cpus-per-task=1", "--kill-on-bad-exit=0",
+            f"--job-name={STEP_NAME}",
             *spec.srun_args, "sh", "-c", line]
 
 
@@ -63,7 +70,7 @@ def allocation_cluster(run: RunSpec, security=None, worker_env=None) -> Iterator
     """
     from distributed import LocalCluster
 
-    from .clusters import bind_host, http_options
+    from .clusters import ONE_THREAD, bind_host, http_options
     if not os.environ.get("SLURM_JOB_ID"):
         raise UserError("run.cluster='allocation' runs inside a SLURM allocation (sbatch or "
                         "salloc): SLURM_JOB_ID is not set")
@@ -78,7 +85,7 @@ def allocation_cluster(run: RunSpec, security=None, worker_env=None) -> Iterator
     cluster = LocalCluster(n_workers=0, host=host, scheduler_port=0, security=security,
                            protocol="tls://" if security else "tcp://",
                            scheduler_kwargs=http_options(run, host), dashboard_address=None)
-    env = {**os.environ, **(worker_env or {}), **WORKER_LOGS}
+    env = {**os.environ, **ONE_THREAD, **(worker_env or {}), **WORKER_LOGS}
     previous = signal.signal(signal.SIGTERM, _interrupt)
     srun = None
     try:
@@ -88,19 +95,29 @@ def allocation_cluster(run: RunSpec, security=None, worker_env=None) -> Iterator
         yield cluster
     finally:
         signal.signal(signal.SIGTERM, previous)
-        cluster.close()  # the workers are told to close, and leave; srun then ends
         if srun is not None:
             _stop(srun)
+        cluster.close()
 
 
 def _stop(srun: subprocess.Popen) -> None:
-    """Wait up to 10 s for the worker step to end, then stop it by its srun's PID (SIGTERM:
-    srun cancels the step; SIGKILL if srun is still there 5 s later)."""
-    for sig, wait in ((None, 10), (signal.SIGTERM, 5), (signal.SIGKILL, 5)):
-        if sig is not None:
-            srun.send_signal(sig)
-        try:
-            srun.wait(timeout=wait)
+    """End the worker step while the scheduler is still up: SIGINT to its tasks through
+    ``scancel --signal`` (each ``dask worker`` then closes gracefully) and up to 15 s for srun
+    to end; then srun itself is stopped by its PID (SIGTERM: srun cancels the step; SIGKILL
+    5 s later)."""
+    job = os.environ.get("SLURM_JOB_ID", "")
+    steps = subprocess.run(["squeue", "--steps", "--jobs", job, "--noheader", "--format",
+                            "%i %j"], capture_output=True, text=True, check=False).stdout
+    for line in steps.splitlines():
+        step, _, name = line.partition(" ")
+        if name.strip() == STEP_NAME:
+            subprocess.run(["scancel", "--signal=INT", step], capture_output=True,
+                           check=False)
+    with contextlib.suppress(subprocess.TimeoutExpired):
+        srun.wait(timeout=15)
+    for sig in (signal.SIGTERM, signal.SIGKILL):
+        if srun.poll() is not None:
             return
-        except subprocess.TimeoutExpired:
-            continue
+        srun.send_signal(sig)
+        with contextlib.suppress(subprocess.TimeoutExpired):
+            srun.wait(timeout=5)

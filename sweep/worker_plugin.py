@@ -13,13 +13,16 @@ import contextlib
 
 from distributed.diagnostics.plugin import WorkerPlugin
 
-from .task import warm_up
+
+def _warm_up(spec_json: str) -> None:
+    from .task import warm_up  # the numerical core: imported here, off the event loop
+    with contextlib.suppress(Exception):  # a failure is left to the tasks, per sample
+        warm_up(spec_json)
 
 
 class WarmUp(WorkerPlugin):
-    """Build the plan and compile its problems on the worker (in its task thread, so that its
-    event loop stays free and no task starts before it).  A failure is left to the tasks,
-    which record it per sample."""
+    """Import the numerical core, build the plan and compile its problems on the worker, in
+    its task thread: its event loop stays free, and no task starts before the warm-up ends."""
 
     name = "orderless-warm-up"
 
@@ -28,5 +31,4 @@ class WarmUp(WorkerPlugin):
 
     async def setup(self, worker) -> None:
         loop = asyncio.get_running_loop()
-        with contextlib.suppress(Exception):
-            await loop.run_in_executor(worker.executors["default"], warm_up, self.spec_json)
+        await loop.run_in_executor(worker.executors["default"], _warm_up, self.spec_json)

@@ -83,8 +83,9 @@ class Slurm:
     procs: list[subprocess.Popen] = field(default_factory=list)
     started_in: float = 0.0
 
-    def run(self, *cmd: str, check: bool = True, **kw) -> subprocess.CompletedProcess:
-        return subprocess.run(list(cmd), env=self.env, capture_output=True, text=True,
+    def run(self, *cmd: str, check: bool = True, env: dict | None = None,
+            **kw) -> subprocess.CompletedProcess:
+        return subprocess.run(list(cmd), env=env or self.env, capture_output=True, text=True,
                               check=check, timeout=60, **kw)
 
     def jobs(self) -> dict[str, str]:
