@@ -49,7 +49,8 @@ def srun_command(address: str, n: int, spec: AllocationSpec) -> list[str]:
     worker = [sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1",
               "--no-nanny", "--no-dashboard", "--death-timeout", "60"]
     worker += ["--interface", spec.interface] if spec.interface else []
-    where = "" if spec.interface else ' --host "$(hostname)"'
+    where = "" if spec.interface else \
+        ' --host "$(hostname)" --dashboard-address "$(hostname):0"'
     line = (f'exec {shlex.join(worker)}{where} '
             '--name "slurm-$SLURM_JOB_ID.$SLURM_PROCID"')
     return ["srun", f"--ntasks={n}", "--cpus-per-task=1", "--kill-on-bad-exit=0",

@@ -100,8 +100,8 @@ def jobqueue_cluster(run: RunSpec, security=None, start: bool = True, worker_env
                    "--no-dashboard"]
     host = bind_host(jq.scheduler_host, interface, "run.jobqueue")
     scheduler_options = {"host": host, **http_options(run, host)}
-    if not interface:  # each worker binds its node's host name, not every interface
-        worker_args += ["--host", "$(hostname)"]
+    if not interface:  # each worker (and its HTTP server) binds its node's host name only
+        worker_args += ["--host", "$(hostname)", "--dashboard-address", "$(hostname):0"]
     cluster = cls(
         cores=jq.cores, processes=jq.processes, memory=jq.memory, walltime=jq.walltime,
         queue=jq.queue, account=jq.account, job_extra_directives=list(jq.extra_directives),

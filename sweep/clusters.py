@@ -88,7 +88,10 @@ def http_options(run: RunSpec, host: str) -> dict:
     """The scheduler's HTTP server: dask always starts one (health, metrics); without
     ``run.dashboard`` it has no dashboard and a free port on ``host`` (no warning about a
     port 8787 in use); with it, the dashboard on 8787 when free, else on a free port."""
-    bind = socket.gethostbyname(host) if host else "127.0.0.1"
+    try:
+        bind = socket.gethostbyname(host)
+    except OSError:  # not resolvable here: let dask bind the name (and report the error)
+        bind = host
     port = 8787 if run.dashboard and _port_free(bind, 8787) else 0
     return {"dashboard": run.dashboard, "dashboard_address": f"{bind}:{port}"}
 
@@ -104,9 +107,15 @@ def _check_dashboard(run: RunSpec) -> None:
 
 def wait_for_first_worker(client, run: RunSpec, refusals: list[str] | None = None) -> None:
     """Block until the cluster has a worker; a refused batch job or ``run.start_timeout``
-    seconds without a worker raise a one-line UserError."""
-    deadline = time.monotonic() + run.start_timeout
+    seconds without a worker raise a one-line UserError.  With ``run.progress``, a wait of
+    more than 5 s is announced on stderr (a batch queue may hold the jobs for a while)."""
+    t0 = time.monotonic()
+    deadline, told = t0 + run.start_timeout, not run.progress
     while True:
+        if not told and time.monotonic() - t0 > 5:
+            print(f"orderless: waiting for the first worker (at most run.start_timeout="
+                  f"{run.start_timeout:g} s)", file=sys.stderr, flush=True)
+            told = True
         if refusals:
             raise UserError(f"run.jobqueue: the batch system refused the job: {refusals[0]}")
         left = deadline - time.monotonic()

@@ -37,16 +37,17 @@ def walltime_seconds(text: str) -> int:
     return ((days * 24 + hours) * 60 + minutes) * 60 + seconds
 
 
-class _Network(_Strict):
-    interface: str | None = Field(None, description="network interface of the scheduler and "
-                                  "the workers, e.g. ib0 (null: each binds its host name's "
-                                  "address)")
-    scheduler_host: str | None = Field(None, description="host or IP the scheduler binds, "
-                                       "which the workers must reach (null: from interface, "
-                                       "else this machine's host name)")
+def _interface() -> Any:
+    return Field(None, description="network interface of the scheduler and the workers, e.g. "
+                 "ib0 (null: each binds its host name's address)")
 
 
-class JobqueueSpec(_Network):
+def _scheduler_host() -> Any:
+    return Field(None, description="host or IP the scheduler binds, which the workers must "
+                 "reach (null: from interface, else this machine's host name)")
+
+
+class JobqueueSpec(_Strict):
     """A batch-queue cluster through dask-jobqueue (extra ``orderless[jobqueue]``).  Workers
     leave before the walltime (worker lifetime, staggered) and are replaced by new jobs."""
 
@@ -64,6 +65,8 @@ class JobqueueSpec(_Network):
                                         description="extra #SBATCH/#PBS/... lines")
     prologue: list[str] = Field(default_factory=list,
                                 description="shell lines run before the worker starts")
+    interface: str | None = _interface()
+    scheduler_host: str | None = _scheduler_host()
     shared_directory: str | None = Field(
         None, description="folder the compute nodes can read, for the temporary TLS "
         "certificates (files of mode 0600, removed at the end; null: the current folder)")
@@ -76,10 +79,12 @@ class JobqueueSpec(_Network):
         return v
 
 
-class AllocationSpec(_Network):
+class AllocationSpec(_Strict):
     """Inside a SLURM allocation (``sbatch``/``salloc``): the driver hosts the scheduler and
     starts one single-threaded worker per allocated task with ``srun``."""
 
+    interface: str | None = _interface()
+    scheduler_host: str | None = _scheduler_host()
     srun_args: list[str] = Field(default_factory=list, description="extra arguments for the "
                                  "workers' srun, e.g. [--mem-per-cpu=2G]")
 

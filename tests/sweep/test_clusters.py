@@ -2,6 +2,7 @@
 wait for the first worker, the warm-up plugin, thread checks and the dashboard."""
 
 import os
+import re
 import socket
 import stat
 import subprocess
@@ -43,6 +44,7 @@ def test_slurm_job_script_carries_the_spec():
     for text in ("#SBATCH --cpus-per-task=4", "00:30:00", "#SBATCH --constraint=cpu",
                  "module load python", "export MKL_NUM_THREADS=1", "--lifetime 1575s",
                  "--lifetime-stagger 75s", "--no-dashboard", "--host $(hostname)",
+                 "--dashboard-address $(hostname):0",
                  "export DASK_DISTRIBUTED__ADMIN__TICK__INTERVAL=1s",
                  "export DASK_DISTRIBUTED__WORKER__PROFILE__ENABLED=False"):
         assert text in script, text
@@ -175,22 +177,35 @@ def _hold(port: int):
     return s
 
 
+def _run_with_8787_busy(*args: str) -> subprocess.CompletedProcess:
+    """``orderless ARGS`` while port 8787 is in use, as when another dask process runs."""
+    held = _hold(8787)
+    try:
+        return subprocess.run([sys.executable, "-m", "sweep.cli", *args], cwd=REPO,
+                              capture_output=True, text=True, timeout=600,
+                              env={**os.environ, "PYTHONWARNINGS": "default"})
+    finally:
+        if held is not None:
+            held.close()
+
+
 @pytest.mark.cluster
 def test_plain_run_prints_no_library_warnings(write_spec, tmp_path):
     """`orderless run` on the local cluster while port 8787 is in use: no dashboard, so no
     dask warning about the port (or any other), only the tool's own output."""
-    held = _hold(8787)
-    try:
-        proc = subprocess.run(
-            [sys.executable, "-m", "sweep.cli", "run", write_spec(OCB), "-o",
-             str(tmp_path / "o.h5"), "--workers", "1"], cwd=REPO, capture_output=True,
-            text=True, timeout=300, env={**os.environ, "PYTHONWARNINGS": "default"})
-    finally:
-        if held is not None:
-            held.close()
+    proc = _run_with_8787_busy("run", write_spec(OCB), "-o", str(tmp_path / "o.h5"),
+                               "--workers", "1")
     assert proc.returncode == 0, proc.stderr
     assert proc.stderr == ""
     assert "2 computed" in proc.stdout
+
+
+@pytest.mark.slow
+def test_demo_prints_no_library_warnings(tmp_path):
+    """The README's first command's demo: stderr holds nothing but its progress bar."""
+    proc = _run_with_8787_busy("demo", "-o", str(tmp_path / "demo.h5"))
+    assert proc.returncode == 0, proc.stderr
+    assert re.sub(r"\[[#.]+\] \d+/\d+ [^\r\n]*", "", proc.stderr).strip() == "", proc.stderr
 
 
 @pytest.mark.cluster
@@ -203,3 +218,13 @@ def test_dashboard_on_request_prints_its_link(capsys):
             assert page.status == 200
     assert f"dashboard: {link}" in capsys.readouterr().err
     assert link.startswith("http://127.0.0.1:")
+
+
+def test_every_shipped_profile_is_valid():
+    """Each profile of job_specs/profiles.yaml resolves to a valid run section, one per kind
+    of cluster (the slurm and allocation ones also run in tests/sweep/test_slurm_readme.py)."""
+    from sweep.spec_run import resolve_run
+    path = REPO / "job_specs" / "profiles.yaml"
+    names = yaml.safe_load(path.read_text())["profiles"]
+    kinds = {resolve_run(RunSpec(), {"profile": n}, str(path)).cluster for n in names}
+    assert kinds == {"local", "address", "jobqueue", "allocation"}
