@@ -16,6 +16,7 @@ import shlex
 import signal
 import subprocess
 import sys
+import threading
 from typing import Iterator
 
 from .errors import UserError
@@ -71,7 +72,7 @@ def allocation_cluster(run: RunSpec, security=None, worker_env=None) -> Iterator
     """
     from distributed import LocalCluster
 
-    from .clusters import ONE_THREAD, bind_host, http_options
+    from .clusters import ONE_THREAD, StartWatch, bind_host, http_options
     if not os.environ.get("SLURM_JOB_ID"):
         raise UserError("run.cluster='allocation' runs inside a SLURM allocation (sbatch or "
                         "salloc): SLURM_JOB_ID is not set")
@@ -87,18 +88,28 @@ def allocation_cluster(run: RunSpec, security=None, worker_env=None) -> Iterator
                            protocol="tls://" if security else "tcp://",
                            scheduler_kwargs=http_options(run, host), dashboard_address=None)
     env = {**os.environ, **ONE_THREAD, **(worker_env or {}), **WORKER_LOGS}
-    previous = signal.signal(signal.SIGTERM, _interrupt)
+    main = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGTERM, _interrupt) if main else None
     srun = None
     try:
         srun = subprocess.Popen(srun_command(cluster.scheduler_address, n, spec), env=env,
                                 stdin=subprocess.DEVNULL)
-        cluster.srun = srun
+        cluster.watch = StartWatch()
+        cluster.watch.probes.append(lambda: _ended(srun))
         yield cluster
     finally:
-        signal.signal(signal.SIGTERM, previous)
+        if main:
+            signal.signal(signal.SIGTERM, previous)
         if srun is not None:
             _stop(srun)
         cluster.close()
+
+
+def _ended(srun: subprocess.Popen) -> str | None:
+    if srun.poll() is None:
+        return None
+    return (f"run.cluster='allocation': the workers' srun ended (exit code {srun.returncode}) "
+            "before a worker joined; its message is above")
 
 
 def _stop(srun: subprocess.Popen) -> None:

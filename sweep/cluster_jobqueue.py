@@ -43,7 +43,7 @@ def _refusal(exc: BaseException) -> str:
 
 
 class JobRefused(RuntimeError):
-    """The batch system refused a job; its message is in :attr:`refusals` of the cluster."""
+    """The batch system refused a job; its message is reported to the cluster's ``watch``."""
 
 
 class _DropRefusals(logging.Filter):
@@ -56,8 +56,8 @@ class _DropRefusals(logging.Filter):
 DROP_REFUSALS = _DropRefusals()
 
 
-def _recording_job(base: type, refusals: list[str]) -> type:
-    """``base`` (a dask-jobqueue Job class) that records why a submission failed."""
+def _recording_job(base: type, watch) -> type:
+    """``base`` (a dask-jobqueue Job class) that reports why a submission failed."""
     from distributed.core import Status
 
     class Recorded(base):
@@ -65,9 +65,10 @@ def _recording_job(base: type, refusals: list[str]) -> type:
             try:
                 await super().start()
             except Exception as exc:  # the submission command failed: keep its message
-                refusals.append(_refusal(exc))
+                message = _refusal(exc)
+                watch.report(f"run.jobqueue: the batch system refused the job: {message}")
                 self.status = Status.failed
-                raise JobRefused(refusals[-1]) from None
+                raise JobRefused(message) from None
 
     Recorded.__name__ = Recorded.__qualname__ = base.__name__
     return Recorded
@@ -81,7 +82,8 @@ def jobqueue_cluster(run: RunSpec, security=None, start: bool = True, worker_env
     """The dask-jobqueue cluster of ``run.jobqueue``; with ``start`` it keeps ``jobs`` jobs.
 
     ``worker_env`` is exported in the job script before the worker starts.  The cluster's
-    ``refusals`` list collects the batch system's messages for jobs it refused.
+    ``watch`` (:class:`sweep.clusters.StartWatch`) gets the batch system's message for each
+    job it refused.
     """
     try:
         import dask
@@ -89,10 +91,10 @@ def jobqueue_cluster(run: RunSpec, security=None, start: bool = True, worker_env
     except ImportError:
         raise UserError("run.cluster='jobqueue' needs dask-jobqueue: pip install "
                         '"orderless[jobqueue]"') from None
-    from .clusters import ONE_THREAD, bind_host, http_options
+    from .clusters import ONE_THREAD, StartWatch, bind_host, http_options
     jq = run.jobqueue
     cls = getattr(dask_jobqueue, CLASSES[jq.system])
-    refusals: list[str] = []
+    watch = StartWatch()
     interface = jq.interface or dask.config.get(f"jobqueue.{cls.job_cls.config_name}"
                                                 ".interface", None)
     lifetime, stagger = worker_lifetime(jq.walltime)
@@ -106,10 +108,10 @@ def jobqueue_cluster(run: RunSpec, security=None, start: bool = True, worker_env
         cores=jq.cores, processes=jq.processes, memory=jq.memory, walltime=jq.walltime,
         queue=jq.queue, account=jq.account, job_extra_directives=list(jq.extra_directives),
         job_script_prologue=[*_exports({**ONE_THREAD, **(worker_env or {})}), *jq.prologue],
-        worker_extra_args=worker_args, job_cls=_recording_job(cls.job_cls, refusals),
+        worker_extra_args=worker_args, job_cls=_recording_job(cls.job_cls, watch),
         interface=interface, scheduler_options=scheduler_options, security=security,
         shared_temp_directory=jq.shared_directory or os.getcwd())
-    cluster.refusals = refusals
+    cluster.watch = watch
     logging.getLogger("tornado.application").addFilter(DROP_REFUSALS)
     if start:
         cluster.adapt(minimum_jobs=jq.jobs, maximum_jobs=jq.jobs)

@@ -105,10 +105,33 @@ def _check_dashboard(run: RunSpec) -> None:
                             ) from None
 
 
-def wait_for_first_worker(client, run: RunSpec, refusals: list[str] | None = None) -> None:
-    """Block until the cluster has a worker; a refused batch job or ``run.start_timeout``
+class StartWatch:
+    """What ends a cluster's start early: problems reported (a job the batch system refused)
+    or found by a probe (the workers' srun ended).  After the start, a report is a warning."""
+
+    def __init__(self) -> None:
+        self.problems: list[str] = []
+        self.probes: list = []
+        self.started = False
+
+    def report(self, message: str) -> None:
+        self.problems.append(message)
+        if self.started:
+            notice(message)
+
+    def problem(self) -> str | None:
+        for probe in self.probes:
+            found = probe()
+            if found:
+                return found
+        return self.problems[0] if self.problems else None
+
+
+def wait_for_first_worker(client, run: RunSpec, watch: StartWatch | None = None) -> None:
+    """Block until the cluster has a worker; a problem of ``watch`` or ``run.start_timeout``
     seconds without a worker raise a one-line UserError.  With ``run.progress``, a wait of
     more than 5 s is announced on stderr (a batch queue may hold the jobs for a while)."""
+    watch = watch or StartWatch()
     t0 = time.monotonic()
     deadline, told = t0 + run.start_timeout, not run.progress
     while True:
@@ -116,17 +139,19 @@ def wait_for_first_worker(client, run: RunSpec, refusals: list[str] | None = Non
             print(f"orderless: waiting for the first worker (at most run.start_timeout="
                   f"{run.start_timeout:g} s)", file=sys.stderr, flush=True)
             told = True
-        if refusals:
-            raise UserError(f"run.jobqueue: the batch system refused the job: {refusals[0]}")
+        problem = watch.problem()
+        if problem:
+            raise UserError(problem)
         left = deadline - time.monotonic()
         if left <= 0:
             where = f"the scheduler {run.address}" if run.cluster == "address" else \
                 f"the {run.cluster} cluster"
             raise UserError(f"no worker joined {where} within run.start_timeout="
-                            f"{run.start_timeout:g} s (queue busy, or workers unable to reach "
-                            "the scheduler?)")
+                            f"{run.start_timeout:g} s (a busy queue needs a longer timeout; "
+                            "or the workers cannot reach the scheduler: see interface)")
         try:
             client.wait_for_workers(1, timeout=min(1.0, left))
+            watch.started = True
             return
         except TimeoutError:
             continue
@@ -198,17 +223,18 @@ def open_client(run: RunSpec, spec_json: str | None = None) -> Iterator:
     with contextlib.ExitStack() as stack:
         if run.cluster == "address":
             client = stack.enter_context(_connect(run, security))
-            refusals = None
+            watch = None
         else:
             stack.enter_context(dask.config.set(CLUSTER_CONFIG))
             cluster = _start_cluster(run, security, stack)
             client = stack.enter_context(Client(cluster, security=security))
-            refusals = getattr(cluster, "refusals", None)
+            watch = getattr(cluster, "watch", None)
         if run.dashboard:
             print(f"dashboard: {client.dashboard_link}", file=sys.stderr, flush=True)
-        wait_for_first_worker(client, run, refusals)
+        wait_for_first_worker(client, run, watch)
         if run.cluster == "address":
-            check_threads(client)
+            with contextlib.suppress(Exception):  # a check: it never stops a run
+                check_threads(client)
         if spec_json is not None:
             from .worker_plugin import WarmUp
             client.register_plugin(WarmUp(spec_json))

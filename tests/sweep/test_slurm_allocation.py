@@ -79,3 +79,17 @@ def test_allocation_outside_slurm_is_a_one_line_error(monkeypatch):
         with open_client(RunSpec(cluster="allocation")):
             pass
 
+
+
+def test_workers_that_cannot_start_end_the_run_with_one_line(slurm, tmp_path):  # noqa: F811
+    """More workers than the allocation has tasks: srun refuses the step, and the run stops
+    with a one-line error instead of waiting run.start_timeout."""
+    (tmp_path / "spec.yaml").write_text(yaml.safe_dump(SPEC))
+    env = {**slurm.env, "PATH": f"{Path(sys.executable).parent}:{slurm.env['PATH']}"}
+    out = slurm.run("sbatch", "-n", "1", "-o", "job-%j.log", "--wrap", LINE + " --workers 3",
+                    cwd=tmp_path, env=env).stdout
+    job = re.search(r"Submitted batch job (\d+)", out).group(1)
+    assert slurm.wait_job(job, timeout=120) == "FAILED"
+    log = (tmp_path / f"job-{job}.log").read_text()
+    errors = [line for line in log.splitlines() if line.startswith("orderless run: error:")]
+    assert len(errors) == 1 and "the workers' srun ended (exit code" in errors[0], log
