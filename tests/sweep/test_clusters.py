@@ -113,7 +113,7 @@ def test_scheduler_without_workers_fails_within_start_timeout():
     instead of a silent wait."""
     from distributed import LocalCluster
     with LocalCluster(n_workers=0, processes=False, protocol="tcp://", host="127.0.0.1",
-                      dashboard_address=None) as sched:
+                      dashboard_address="127.0.0.1:0") as sched:
         run = RunSpec(cluster="address", address=sched.scheduler_address, start_timeout=1)
         with pytest.raises(UserError, match="no worker joined .* within run.start_timeout=1 s"):
             with open_client(run):
@@ -137,7 +137,7 @@ def test_threads_beyond_cores_are_reported(monkeypatch, capsys):
     cores = len(os.sched_getaffinity(0))
     for threads, warned in ((1, False), (cores + 1, True)):
         with LocalCluster(n_workers=1, threads_per_worker=threads, processes=False,
-                          dashboard_address=None) as c, Client(c) as client:
+                          dashboard_address="127.0.0.1:0") as c, Client(c) as client:
             check_threads(client)
         err = capsys.readouterr().err
         assert (f"run {threads} threads" in err) is warned, err
@@ -228,3 +228,15 @@ def test_every_shipped_profile_is_valid():
     names = yaml.safe_load(path.read_text())["profiles"]
     kinds = {resolve_run(RunSpec(), {"profile": n}, str(path)).cluster for n in names}
     assert kinds == {"local", "address", "jobqueue", "allocation"}
+
+
+@pytest.mark.parametrize("module, run, extra", [
+    ("dask_jobqueue", {"cluster": "jobqueue", "jobqueue": {"system": "slurm"}}, "jobqueue"),
+    ("bokeh", {"dashboard": True}, "dashboard")])
+def test_missing_extra_is_a_one_line_error_naming_it(module, run, extra, monkeypatch):
+    """Without an optional package (None in sys.modules makes its import fail), the run stops
+    with one line naming the extra to install."""
+    monkeypatch.setitem(sys.modules, module, None)
+    with pytest.raises(UserError, match=re.escape(f'pip install "orderless[{extra}]"')):
+        with open_client(RunSpec.model_validate(run)):
+            pass

@@ -66,7 +66,7 @@ def test_tls_address_with_certificate_files(tmp_path):
     key.write_text(temp.tls_worker_key)
     files = {"ca_file": str(ca), "cert_file": str(cert), "key_file": str(key)}
     with LocalCluster(n_workers=1, threads_per_worker=1, protocol="tls://", host="127.0.0.1",
-                      security=temp, dashboard_address=None) as cluster:
+                      security=temp, dashboard_address="127.0.0.1:0") as cluster:
         run = RunSpec(cluster="address", address=cluster.scheduler_address, security=files,
                       progress=False)
         out = run_sweep(parse_spec(OCB), str(tmp_path / "t.h5"), run)
