@@ -187,7 +187,8 @@ def _connect(run: RunSpec, security):
     from distributed import Client
     warn_if_plain(run.address)
     try:
-        return Client(run.address, timeout="10s", security=security)
+        return Client(run.address, timeout=f"{min(run.start_timeout, 30.0):g}s",
+                      security=security)
     except (OSError, TimeoutError, ValueError, TypeError) as exc:
         reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise UserError(f"run.address={run.address!r}: cannot reach the scheduler "

@@ -120,11 +120,21 @@ def test_scheduler_without_workers_fails_within_start_timeout():
                 pass
 
 
-def test_bad_scheduler_address_is_a_one_line_error(write_spec, capsys):
-    code = main(["run", write_spec(OCB), "-o", "x.h5", "--scheduler", "notanaddress"])
+@pytest.mark.parametrize("address, says", [
+    ("notanaddress", "run.address='notanaddress': not a scheduler address"),
+    ("tcp://127.0.0.1:{port}", "cannot reach the scheduler")])
+def test_bad_scheduler_address_is_a_one_line_error(address, says, write_spec, capsys, tmp_path):
+    """Not an address, or nothing listening there: one line, exit 2 (within the connect
+    timeout, min(run.start_timeout, 30 s))."""
+    with socket.socket() as s:  # a free port on loopback, closed again: nobody listens
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    address, says = address.format(port=port), says.format(port=port)
+    spec = write_spec({**OCB, "run": {"progress": False, "start_timeout": 2}})
+    code = main(["run", spec, "-o", str(tmp_path / "x.h5"), "--scheduler", address])
     err = capsys.readouterr().err
-    assert code == 2 and err.count("\n") == 1
-    assert "run.address='notanaddress': not a scheduler address" in err
+    assert code == 2 and err.count("\n") == 1, err
+    assert says in err
 
 
 @pytest.mark.cluster
