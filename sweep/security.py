@@ -19,8 +19,9 @@ from pathlib import Path
 from .errors import UserError
 from .spec_run import RunSpec
 
-PLAIN_RISK = ("is plain TCP to another machine: anyone who can reach it can run code as you; "
-              "use a tls:// address with run.security certificate files")
+RISK = "anyone who can reach it can run code as you"
+PLAIN_RISK = (f"is plain TCP to another machine: {RISK}; use a tls:// address with "
+              "run.security certificate files")
 
 
 def notice(message: str) -> None:
@@ -37,8 +38,12 @@ def _file(field: str, value: str) -> str:
 
 
 def security_for(run: RunSpec):
-    """The ``distributed.security.Security`` of ``run`` (None when TLS is off)."""
+    """The ``distributed.security.Security`` of ``run`` (None when TLS is off; opting out for
+    a cluster off this machine is warned about)."""
     if not run.tls():
+        if run.cluster in ("jobqueue", "allocation"):
+            notice(f"run.security.tls is off: the {run.cluster} cluster's scheduler takes "
+                   f"plain TCP from other machines: {RISK}")
         return None
     from distributed.security import Security
     sec = run.security

@@ -93,11 +93,16 @@ def test_plain_tcp_to_another_machine_is_named_as_a_risk(capsys):
     assert is_loopback("localhost") and is_loopback("[::1]") and not is_loopback("192.0.2.7")
 
 
-def test_tls_defaults():
-    """TLS is on by default for the clusters started off this machine, off for local."""
+def test_tls_defaults(capsys):
+    """TLS is on by default for the clusters started off this machine, off for local; opting
+    out for a batch cluster is named as a risk."""
     jq = {"system": "slurm"}
     assert RunSpec(cluster="jobqueue", jobqueue=jq).tls()
     assert RunSpec(cluster="allocation").tls()
     assert not RunSpec(cluster="jobqueue", jobqueue=jq, security={"tls": False}).tls()
     assert not RunSpec().tls() and not RunSpec(cluster="address",
                                                address="tcp://127.0.0.1:1").tls()
+    assert security_for(RunSpec()) is None and capsys.readouterr().err == ""
+    assert security_for(RunSpec(cluster="allocation", security={"tls": False})) is None
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "anyone who can reach it can run code as you" in err
