@@ -54,6 +54,13 @@ def security_for(run: RunSpec):
                         **{f"tls_{role}_{kind}": value for role in ("client", "scheduler",
                                                                     "worker")
                            for kind, value in (("cert", cert), ("key", key)) if value})
+    if run.cluster == "address":  # certificates from dask's configuration (DASK_CONFIG)?
+        conf = Security()
+        if conf.tls_ca_file and conf.tls_client_cert:
+            return conf
+        raise UserError(f"run.address={run.address!r}: a tls:// address needs certificates: "
+                        "run.security.ca_file and cert_file (and key_file unless the key is in "
+                        "cert_file), or dask's distributed.comm.tls settings (DASK_CONFIG)")
     try:
         return Security.temporary()
     except ImportError:

@@ -94,7 +94,8 @@ class SecuritySpec(_Strict):
     client sends it: a cluster reachable from the network needs TLS."""
 
     tls: bool | None = Field(None, description="null: on for jobqueue and allocation, off for "
-                             "local; address: as the address says (tls://)")
+                             "local; address: as the address says (tls://, with the files "
+                             "below or dask's distributed.comm.tls settings)")
     ca_file: str | None = Field(None, description="CA certificate (PEM) that signed every "
                                 "certificate below (null with tls on: a temporary CA and "
                                 "certificate for this run)")
@@ -154,9 +155,8 @@ class RunSpec(_Strict):
             raise ValueError("cluster='jobqueue' needs a run.jobqueue section (system, cores, "
                              "memory, walltime)")
         if self.cluster == "address" and self.address.startswith("tls://"):
-            if self.security.tls is False or not self.security.cert_file:
-                raise ValueError("a tls:// address needs run.security.ca_file and cert_file "
-                                 "(and key_file unless the key is in cert_file)")
+            if self.security.tls is False:
+                raise ValueError("run.security.tls is off but the address is tls://")
         elif self.cluster == "address" and self.security.tls:
             raise ValueError("run.security.tls is on but the address is not tls://")
         return self

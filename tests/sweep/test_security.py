@@ -73,14 +73,23 @@ def test_tls_address_with_certificate_files(tmp_path):
     assert out.computed == 2 and len(read_results(tmp_path / "t.h5")[1]) == 2
 
 
-def test_tls_address_needs_certificate_files():
-    with pytest.raises(UserError, match="tls:// address needs run.security.ca_file"):
-        resolve_run(RunSpec(), {"address": "tls://127.0.0.1:8786"})
-    run = RunSpec(cluster="address", address="tls://127.0.0.1:8786", security={
+def test_tls_address_needs_certificates():
+    """A tls:// address takes run.security files or dask's own TLS settings (a DASK_CONFIG
+    folder, as for docker/compose.yaml); with neither, or with missing files, one line."""
+    run = resolve_run(RunSpec(), {"address": "tls://127.0.0.1:8786"})
+    with pytest.raises(UserError, match="a tls:// address needs certificates: run.security"):
+        security_for(run)
+    import dask
+    with dask.config.set({"distributed.comm.tls.ca-file": "/c/ca.pem",
+                          "distributed.comm.tls.client.cert": "/c/cert.pem"}):
+        assert security_for(run).tls_client_cert == "/c/cert.pem"
+    missing = RunSpec(cluster="address", address=run.address, security={
         "ca_file": "/nonexistent/ca.pem", "cert_file": "/nonexistent/cert.pem"})
     with pytest.raises(UserError, match=r"run.security.ca_file='/nonexistent/ca.pem': file "
                        "does not exist"):  # checked when connecting, not when reading specs
-        security_for(run)
+        security_for(missing)
+    with pytest.raises(UserError, match="tls is off but the address is tls://"):
+        resolve_run(RunSpec(), {"address": "tls://127.0.0.1:8786"} | {"security": {"tls": False}})
 
 
 def test_plain_tcp_to_another_machine_is_named_as_a_risk(capsys):
