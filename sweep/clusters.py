@@ -197,15 +197,16 @@ def _connect(run: RunSpec, security):
 
 def _start_cluster(run: RunSpec, security, stack: contextlib.ExitStack):
     from distributed import LocalCluster
-    env = {**config_environ(CLUSTER_CONFIG), **worker_environ(security)}
-    if run.cluster == "jobqueue":
+    env = config_environ(CLUSTER_CONFIG)
+    if run.cluster == "jobqueue":  # TLS: dask-jobqueue hands the workers files of mode 0600
         import dask
         from .cluster_jobqueue import JOBQUEUE_CONFIG, jobqueue_cluster
         stack.enter_context(dask.config.set(JOBQUEUE_CONFIG))
         return stack.enter_context(jobqueue_cluster(run, security, worker_env=env))
-    if run.cluster == "allocation":
+    if run.cluster == "allocation":  # TLS through the job step's environment
         from .cluster_allocation import allocation_cluster
-        return stack.enter_context(allocation_cluster(run, security, worker_env=env))
+        return stack.enter_context(allocation_cluster(
+            run, security, worker_env={**env, **worker_environ(security)}))
     return stack.enter_context(LocalCluster(
         n_workers=run.workers or os.cpu_count() or 1, threads_per_worker=1, processes=True,
         host="127.0.0.1", security=security, protocol="tls://" if security else "tcp://",

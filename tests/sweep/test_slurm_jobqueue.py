@@ -80,10 +80,13 @@ def _readback(dask_worker):
 def test_worker_reads_back_cluster_settings_and_refuses_strangers(on_slurm):
     """A SLURM worker has CLUSTER_CONFIG (not dask's defaults: profiler off, 1 s ticks), one
     BLAS thread and one dask thread, and was warmed up when it joined; the scheduler is TLS
-    (the default for jobqueue) and refuses clients without the run's credentials."""
+    (the default for jobqueue), the job script holds no key, and clients without the run's
+    credentials are refused."""
     spec = parse_spec(OCB)
     with open_client(_run(), spec.model_dump_json()) as client:
         seen = list(client.run(_readback).values())
+        script = client.cluster.job_script()
+        assert "--tls-key" in script and "PRIVATE KEY" not in script  # a 0600 file instead
         assert client.scheduler.address.startswith("tls://127.0.0.1:")
         rejects_strangers(client.scheduler.address)
     assert len(seen) == 1 and seen[0]["job"].isdigit()  # a worker inside a SLURM job
