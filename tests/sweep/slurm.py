@@ -158,7 +158,8 @@ def start_slurm(folder: Path) -> Slurm:
     conf = folder / "slurm.conf"
     conf.write_text(CONF.format(node=node, ctld_port=free_port(), d_port=free_port(),
                                 sock=sock, d=folder))
-    env = {**os.environ, "SLURM_CONF": str(conf)}
+    # its clients (and their batch jobs) keep dask's configuration in the folder too
+    env = {**os.environ, "SLURM_CONF": str(conf), "DASK_CONFIG": str(folder / "dask")}
     slurm = Slurm(folder, env)
     subprocess.run(["mungekey", "-c", "-k", str(key)], check=True, capture_output=True)
     try:
