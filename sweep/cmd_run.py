@@ -21,7 +21,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--profiles", help="profile file (default $ORDERLESS_PROFILES or "
                    "./orderless-profiles.yaml)")
     p.add_argument("--scheduler", dest="address", help="address of a running dask scheduler")
-    p.add_argument("--cluster", choices=["local", "address", "jobqueue", "serial"])
+    p.add_argument("--cluster", choices=["local", "address", "jobqueue", "allocation", "serial"])
     p.add_argument("--workers", type=int, help="local worker processes")
     p.add_argument("--samples-per-task", dest="samples_per_task", type=int)
     p.add_argument("--no-progress", dest="progress", action="store_const", const=False)
