@@ -6,7 +6,7 @@ import argparse
 
 from .plot import make_figure
 from .stats import summarise
-from .storage import read_results
+from .results import read_results
 
 
 def register(sub: argparse._SubParsersAction) -> None:

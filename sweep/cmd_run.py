@@ -9,7 +9,7 @@ from .execute import run_sweep
 from .spec import load_spec
 from .spec_run import resolve_run
 from .stats import format_table, summarise
-from .storage import read_results
+from .results import read_results
 
 
 def register(sub: argparse._SubParsersAction) -> None:

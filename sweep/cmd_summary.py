@@ -6,7 +6,7 @@ import argparse
 import json
 
 from .stats import format_table, summarise
-from .storage import read_results
+from .results import read_results
 
 
 def register(sub: argparse._SubParsersAction) -> None:

@@ -1,11 +1,19 @@
 """Running a sweep on dask: clients for each kind of cluster, submission, progress, resume.
 
 The driver is the only process that touches the HDF5 file.  Tasks are
-:func:`sweep.task.run_samples` calls on plain data (the spec as JSON and a list of sample
-indices), submitted with ``pure=False`` and unique keys; results are appended as they arrive.
+:func:`sweep.task.run_samples` calls on plain data (:meth:`sweep.plan.Plan.task_json` and a
+list of sample indices), submitted with ``pure=False`` and unique keys, at most a window of
+them at a time (the task lists are generated lazily); results are appended as they arrive.
 A worker that dies has its tasks re-run by dask; a sample already stored is never written
-twice.  Ctrl-C cancels the outstanding tasks, closes the file and re-raises: rerunning the
-same command resumes.
+twice.
+
+How a run ends, always with the data kept and the run's state recorded (in the file's
+``runs`` and in the progress file): ``complete``; ``interrupted`` by Ctrl-C (outstanding
+tasks cancelled, local workers ignore the terminal's SIGINT so only one line is printed);
+``terminated`` by SIGTERM or SIGHUP (:class:`sweep.errors.RunStopped`); ``failed`` with a
+one-line :class:`sweep.errors.UserError` or :class:`sweep.errors.EnvironmentFault` (disk
+full, lost scheduler, a task that kills its workers).  A run that fails before its first
+result leaves no new file behind.  Rerunning the same command resumes.
 """
 
 from __future__ import annotations
@@ -13,17 +21,21 @@ from __future__ import annotations
 import contextlib
 import math
 import os
-import sys
+import signal
+import threading
 import time
 import uuid
 from dataclasses import dataclass
-from typing import Iterator, TextIO
+from typing import Iterable, Iterator
 
-from .errors import UserError
-from .plan import Plan
+from . import limits
+from .errors import EnvironmentFault, RunStopped, UserError
+from .monitor import Monitor
+from .plan import Plan, missing_indices
+from .progress import ProgressFile
 from .spec import Spec
 from .spec_run import RunSpec
-from .storage import ResultFile
+from .storage import ResultFile, free_bytes
 from .task import run_samples, warm_up
 
 ONE_THREAD = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
@@ -65,31 +77,6 @@ class SweepOutcome:
     compute: float = 0.0
     storage: float = 0.0
     task_seconds: float = 0.0
-
-
-class Progress:
-    """A one-line text progress bar with rate and ETA (stderr)."""
-
-    def __init__(self, total: int, enabled: bool, stream: TextIO | None = None) -> None:
-        self.total, self.enabled, self.stream = total, enabled, stream or sys.stderr
-        self.done, self.t0, self.last = 0, time.monotonic(), 0.0
-
-    def update(self, n: int) -> None:
-        self.done += n
-        t = time.monotonic()
-        if self.enabled and (t - self.last > 0.2 or self.done >= self.total):
-            self.last = t
-            rate = self.done / max(t - self.t0, 1e-9)
-            eta = (self.total - self.done) / rate if rate > 0 else float("inf")
-            width = 30
-            fill = int(width * self.done / max(self.total, 1))
-            self.stream.write(f"\r[{'#' * fill}{'.' * (width - fill)}] {self.done}/{self.total}"
-                              f"  {rate:.1f} samples/s  ETA {eta:.0f} s ")
-            self.stream.flush()
-
-    def close(self) -> None:
-        if self.enabled and self.total:
-            self.stream.write("\n")
 
 
 def jobqueue_cluster(run: RunSpec, start: bool = True):
@@ -137,49 +124,9 @@ def open_client(run: RunSpec) -> Iterator:
             yield client
 
 
-def _submit_all(client, spec_json: str, tasks: list[list[int]]):
-    tag = uuid.uuid4().hex[:8]
-    return [client.submit(run_samples, spec_json, t, pure=False,
-                          key=f"orderless-{tag}-{t[0]}-{t[-1]}") for t in tasks]
-
-
-def _run_dask(store: ResultFile, spec_json: str, tasks, run: RunSpec, bar: Progress) -> None:
-    from distributed import as_completed
-    t0 = time.monotonic()
-    with open_client(run) as client:
-        client.run(warm_up, spec_json)  # imports and compiled problems, on every worker
-        store.run_entry["startup_s"] = round(time.monotonic() - t0, 3)
-        with _compute_phase(store):
-            futures = _submit_all(client, spec_json, tasks)
-            try:
-                for fut in as_completed(futures):
-                    rows = fut.result()
-                    bar.update(store.append(rows))
-                    fut.release()
-            except BaseException:
-                client.cancel(futures)
-                raise
-
-
-def _run_serial(store: ResultFile, spec_json: str, tasks, bar: Progress) -> None:
-    with _compute_phase(store):
-        for t in tasks:
-            bar.update(store.append(run_samples(spec_json, t)))
-
-
-@contextlib.contextmanager
-def _compute_phase(store: ResultFile) -> Iterator[None]:
-    """Record in the run entry the seconds from the first task submitted to the last result
-    stored (``compute_s``; the cluster's start-up and shut-down are not in it)."""
-    t0 = time.monotonic()
-    try:
-        yield
-    finally:
-        store.run_entry["compute_s"] = round(time.monotonic() - t0, 3)
-
-
 MAX_AUTO_TASK = 32  # samples per task when the size is automatic: enough to batch the IPM
 TASKS_PER_WORKER = 8  # ... and never so few tasks that the last ones leave workers idle
+WINDOW_PER_THREAD = 4  # tasks submitted ahead per worker thread (the rest wait in the driver)
 
 
 def auto_task_size(n_missing: int, run: RunSpec) -> int:
@@ -194,30 +141,306 @@ def auto_task_size(n_missing: int, run: RunSpec) -> int:
     return max(1, min(MAX_AUTO_TASK, math.ceil(n_missing / (TASKS_PER_WORKER * workers))))
 
 
+class _Signals:
+    """Ctrl-C, SIGTERM and SIGHUP during a run (main thread only).
+
+    They raise KeyboardInterrupt / :class:`RunStopped`, except inside :meth:`critical`
+    (an HDF5 write), where they are held and raised right after it.  SIGHUP is left alone
+    when it is ignored (``nohup``).
+    """
+
+    def __init__(self) -> None:
+        self.active = threading.current_thread() is threading.main_thread()
+        self.inside = False
+        self.pending: BaseException | None = None
+        self.old: dict[int, object] = {}
+
+    def _raise(self, exc: BaseException) -> None:
+        if self.inside:
+            self.pending = self.pending or exc
+        else:
+            raise exc
+
+    def _handler(self, signum: int, frame) -> None:
+        if signum == signal.SIGINT:
+            self._raise(KeyboardInterrupt())
+        else:
+            self._raise(RunStopped(signum, signal.Signals(signum).name))
+
+    def __enter__(self) -> "_Signals":
+        if self.active:
+            for sig in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+                if signal.getsignal(sig) != signal.SIG_IGN:
+                    self.old[sig] = signal.signal(sig, self._handler)
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        for sig, handler in self.old.items():
+            signal.signal(sig, handler)
+
+    @contextlib.contextmanager
+    def critical(self) -> Iterator[None]:
+        self.inside = True
+        try:
+            yield
+        finally:
+            self.inside = False
+        if self.pending is not None:
+            exc, self.pending = self.pending, None
+            raise exc
+
+    @contextlib.contextmanager
+    def children_ignore_ctrl_c(self, local: bool) -> Iterator[None]:
+        """While local worker processes are spawned, SIGINT is ignored, so they inherit
+        that and a Ctrl-C in the terminal reaches the driver only (a Ctrl-C in these few
+        seconds is lost)."""
+        if not (local and self.active and signal.SIGINT in self.old):
+            yield
+            return
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+        try:
+            yield
+        finally:
+            signal.signal(signal.SIGINT, self._handler)
+
+
+def _kept(store: ResultFile) -> str:
+    return f"{store.n_done} of {store.plan.n_samples} samples are stored in {str(store.path)!r}"
+
+
+def _task_failure(exc: Exception, client, run: RunSpec, store: ResultFile) -> UserError:
+    """The one-line error for a task that did not return rows."""
+    from concurrent.futures import CancelledError
+
+    from distributed import KilledWorker
+    if isinstance(exc, UserError):
+        return exc
+    if isinstance(exc, KilledWorker):
+        return EnvironmentFault(f"a task killed its worker several times (out of memory? "
+                                f"{str(exc).splitlines()[0][:120]}); {_kept(store)}: give the "
+                                "workers more memory, then rerun the same command to resume")
+    lost = getattr(client, "status", "running") != "running"
+    if lost or isinstance(exc, (CancelledError, OSError, TimeoutError)):
+        where = f"at {run.address}" if run.cluster == "address" else "of the cluster"
+        return EnvironmentFault(f"lost the dask scheduler {where} mid-run "
+                                f"({type(exc).__name__}); {_kept(store)}: restart the scheduler "
+                                "and its workers, then rerun the same command to resume")
+    return EnvironmentFault(f"a task failed on a worker ({type(exc).__name__}: "
+                            f"{str(exc).splitlines()[0][:150] if str(exc) else ''}); "
+                            f"{_kept(store)}; rerun the same command to resume")
+
+
+def _store_rows(store: ResultFile, mon: Monitor, sig: _Signals, rows: list) -> None:
+    with sig.critical():
+        mon.add(rows, store.append(rows))
+
+
+def _started(store: ResultFile, run: RunSpec, mon: Monitor) -> None:
+    """The cluster is ready: create the file (if new) and record the run."""
+    store.create()
+    store.start_run(run.cluster)
+    if mon.file is not None:
+        mon.file.write(run_id=store.run_entry["id"], stored=store.n_done)
+
+
+def _run_dask(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run: RunSpec,
+              mon: Monitor, sig: _Signals, n_tasks: int) -> None:
+    from distributed import as_completed
+    t0 = time.monotonic()
+    with contextlib.ExitStack() as stack:
+        stack.enter_context(_dask_logs())
+        mon.phase("starting cluster", _describe(run))
+        with sig.children_ignore_ctrl_c(run.cluster == "local"), _worker_setup(run):
+            client = stack.enter_context(open_client(run))
+        if run.cluster == "address":
+            _check_address_limits(store, client, mon)
+        mon.phase("compiling", "robustness problems on every worker")
+        client.run(warm_up, task_json)  # imports and compiled problems, on every worker
+        startup = round(time.monotonic() - t0, 3)
+        _started(store, run, mon)
+        store.run_entry["startup_s"] = startup
+        threads = sum(w.get("nthreads", 1) for w in client.scheduler_info()["workers"].values())
+        window = max(WINDOW_PER_THREAD * max(threads, 1), 8)
+        tag = uuid.uuid4().hex[:8]
+        it = iter(tasks)
+
+        def submit() -> object | None:
+            t = next(it, None)
+            return None if t is None else client.submit(
+                run_samples, task_json, t, pure=False, key=f"orderless-{tag}-{t[0]}-{t[-1]}")
+
+        first = [f for f in (submit() for _ in range(window)) if f is not None]
+        pending = set(first)
+        with _compute_phase(store):
+            mon.solving(n_tasks)
+            ac = as_completed(first)
+            try:
+                for fut in ac:
+                    pending.discard(fut)
+                    try:
+                        rows = fut.result()
+                    except Exception as exc:  # noqa: BLE001 - becomes one line
+                        raise _task_failure(exc, client, run, store) from None
+                    _store_rows(store, mon, sig, rows)
+                    fut.release()
+                    nxt = submit()
+                    if nxt is not None:
+                        pending.add(nxt)
+                        ac.add(nxt)
+            except BaseException:
+                _quiet_dask()
+                if run.cluster != "local" and client.status == "running" and pending:
+                    with contextlib.suppress(Exception):
+                        client.cancel(list(pending))  # external workers stop computing them
+                raise
+
+
+def _run_serial(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run: RunSpec,
+                mon: Monitor, sig: _Signals, n_tasks: int) -> None:
+    mon.phase("compiling", "robustness problems in this process")
+    warm_up(task_json)
+    _started(store, run, mon)
+    with _compute_phase(store):
+        mon.solving(n_tasks)
+        for t in tasks:
+            _store_rows(store, mon, sig, run_samples(task_json, t))
+
+
+def _quiet_dask() -> None:
+    """A run that stops reports it in one line: dask's own warnings while the cluster shuts
+    down after that (workers still busy, connections lost) would only bury it."""
+    import logging
+    logging.getLogger("distributed").setLevel(logging.CRITICAL)
+
+
+@contextlib.contextmanager
+def _dask_logs() -> Iterator[None]:
+    """The client's error logs (a lost scheduler: a traceback per reconnection attempt) are
+    off during a run, which turns every such fault into its one line; dask's log levels are
+    restored when the cluster is closed."""
+    import logging
+    loggers = [logging.getLogger(n) for n in ("distributed", "distributed.client")]
+    levels = [lg.level for lg in loggers]
+    loggers[1].setLevel(logging.CRITICAL)
+    try:
+        yield
+    finally:
+        for lg, level in zip(loggers, levels):
+            lg.setLevel(level)
+
+
+@contextlib.contextmanager
+def _worker_setup(run: RunSpec) -> Iterator[None]:
+    """Local workers load :mod:`sweep.worker_setup` at start (also after a restart)."""
+    if run.cluster != "local":
+        yield
+        return
+    import dask
+    with dask.config.set({"distributed.worker.preload": ["sweep.worker_setup"]}):
+        yield
+
+
+def _describe(run: RunSpec) -> str:
+    if run.cluster == "local":
+        return f"local, {run.workers or os.cpu_count() or 1} worker processes"
+    if run.cluster == "address":
+        return f"scheduler {run.address}"
+    jq = run.jobqueue
+    return f"{jq.system} batch queue, {jq.jobs} job(s) x {jq.processes} worker(s)"
+
+
+@contextlib.contextmanager
+def _compute_phase(store: ResultFile) -> Iterator[None]:
+    """Record in the run entry the seconds from the first task submitted to the last result
+    stored (``compute_s``; the cluster's start-up and shut-down are not in it)."""
+    t0 = time.monotonic()
+    try:
+        yield
+    finally:
+        if store.run_entry is not None:
+            store.run_entry["compute_s"] = round(time.monotonic() - t0, 3)
+
+
+def _workers_and_memory(run: RunSpec) -> tuple[int, float | None]:
+    """Workers and the memory each may use, known before the cluster starts."""
+    import psutil
+    if run.cluster == "serial":
+        return 1, float(psutil.virtual_memory().available)
+    if run.cluster == "local":
+        n = run.workers or os.cpu_count() or 1
+        return n, psutil.virtual_memory().total / n
+    if run.cluster == "jobqueue" and run.jobqueue is not None:
+        from dask.utils import parse_bytes
+        jq = run.jobqueue
+        return jq.jobs * jq.processes, parse_bytes(jq.memory) / jq.processes
+    return 1, None  # address: known once connected
+
+
+def _check_limits(store: ResultFile, mon: Monitor, n_missing: int, workers: int,
+                  memory: float | None) -> None:
+    try:
+        free = float(free_bytes(store.existing_folder()))
+    except OSError:
+        free = None
+    est, warnings = limits.check(store.plan, n_missing, workers, memory, free,
+                                 repr(str(store.folder)))
+    store.estimate = est
+    for w in warnings:
+        mon.note(w)
+
+
+def _check_address_limits(store: ResultFile, client, mon: Monitor) -> None:
+    info = client.scheduler_info()["workers"].values()
+    limits_ = [w.get("memory_limit") or 0 for w in info]
+    memory = min(limits_) if limits_ and min(limits_) > 0 else None
+    _check_limits(store, mon, mon.total, max(len(limits_), 1), memory)
+
+
 def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
     """Compute every sample of ``spec`` missing from ``out`` on the cluster ``run``."""
     run = run or spec.run
     plan = Plan(spec)
     t0 = time.monotonic()
-    with ResultFile(out, plan) as store:
-        done = store.done_indices()
-        missing = [i for i in range(plan.n_samples) if i not in done]
-        tasks = plan.tasks(missing, run.samples_per_task or auto_task_size(len(missing), run))
-        bar = Progress(len(missing), run.progress)
-        store.start_run(run.cluster)
-        state = "interrupted"
+    with ResultFile(out, plan) as store, _Signals() as sig:
+        n_missing = plan.n_samples - store.n_done
+        per_task = run.samples_per_task or auto_task_size(n_missing, run)
+        progress = ProgressFile(out, {"spec_hash": plan.spec_hash(), "host": os.uname().nodename,
+                                      "pid": os.getpid(), "cluster": run.cluster,
+                                      "n_samples": plan.n_samples})
+        mon = Monitor(n_missing, run.progress, progress, stored=store.n_done)
+        state, error = "interrupted", None
         try:
-            if tasks:
-                spec_json = spec.model_dump_json()
-                if run.cluster == "serial":
-                    _run_serial(store, spec_json, tasks, bar)
+            with mon:
+                if run.cluster != "address":
+                    _check_limits(store, mon, n_missing, *_workers_and_memory(run))
+                tasks = plan.tasks(missing_indices(store.done_mask()), per_task)
+                n_tasks = math.ceil(n_missing / per_task)
+                if n_missing == 0:
+                    _started(store, run, mon)
+                elif run.cluster == "serial":
+                    _run_serial(store, plan.task_json(), tasks, run, mon, sig, n_tasks)
                 else:
-                    _run_dask(store, spec_json, tasks, run, bar)
-            state = "complete"
+                    _run_dask(store, plan.task_json(), tasks, run, mon, sig, n_tasks)
+                state = "complete"
+        except KeyboardInterrupt:
+            raise KeyboardInterrupt(f"interrupted; {_kept(store)}: rerun the same command to "
+                                    "resume") from None
+        except RunStopped as exc:
+            state, error = "terminated", f"stopped by {exc.name}"
+            exc.message = f"stopped by {exc.name}; {_kept(store)}: rerun the same command to resume"
+            raise
+        except UserError as exc:
+            state, error = "failed", str(exc)
+            raise
+        except Exception as exc:
+            state, error = "failed", f"{type(exc).__name__}: {exc}"
+            raise
         finally:
-            bar.close()
-            store.finish(state)
+            store.finish(state, error)
+            mon.finish(state, error)
+            if store.f is None or store.remove_if_unused():
+                progress.remove()
         e = store.run_entry
-    return SweepOutcome(str(out), plan.n_samples, len(done), e["computed"],
+    return SweepOutcome(str(out), plan.n_samples, plan.n_samples - n_missing, e["computed"],
                         time.monotonic() - t0, e.get("startup_s", 0.0), e.get("compute_s", 0.0),
                         e["storage_s"], e["task_s"])

@@ -1,10 +1,8 @@
-"""Execution helpers: the batch-queue job script and the progress bar."""
-
-import io
+"""Execution helpers: the batch-queue job script and the cluster settings."""
 
 import pytest
 
-from sweep.execute import Progress, jobqueue_cluster
+from sweep.execute import jobqueue_cluster
 from sweep.spec_run import RunSpec
 
 
@@ -23,15 +21,6 @@ def test_slurm_job_script_carries_the_spec(tmp_path):
     for text in ("#SBATCH --cpus-per-task=4", "00:30:00", "#SBATCH --constraint=cpu",
                  "module load python", "export MKL_NUM_THREADS=1"):
         assert text in script, text
-
-
-def test_progress_reports_count_rate_and_eta():
-    buf = io.StringIO()
-    bar = Progress(10, True, buf)
-    bar.update(10)
-    bar.close()
-    assert "10/10" in buf.getvalue() and "samples/s" in buf.getvalue()
-    assert "ETA 0 s" in buf.getvalue()
 
 
 def test_cluster_config_names_existing_dask_settings():
