@@ -22,19 +22,28 @@ COMMAND_MODULES = ("sweep.cmd_check", "sweep.cmd_games", "sweep.cmd_run", "sweep
                    "sweep.cmd_verify")
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The parser; with ``command`` given only that command's module is imported (the others
+    get bare entries), so a light command such as ``status`` starts fast."""
     parser = argparse.ArgumentParser(
         prog="orderless",
         description="Causal separability, robustness and causal inequalities of process matrices.",
     )
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-    for name in COMMAND_MODULES:
-        importlib.import_module(name).register(sub)
+    for module in COMMAND_MODULES:
+        name = module.removeprefix("sweep.cmd_")
+        if command is None or name == command:
+            importlib.import_module(module).register(sub)
+        else:
+            sub.add_parser(name)
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    first = next((a for a in argv if not a.startswith("-")), None)
+    known = {m.removeprefix("sweep.cmd_") for m in COMMAND_MODULES}
+    parser = build_parser(first if first in known and "-h" not in argv[:1] else None)
     args = parser.parse_args(argv)
     try:
         code = int(args.func(args) or 0)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 
-from .limits import human_seconds
+from .units import human_seconds
 from .status import run_status
 
 

@@ -378,6 +378,7 @@ def _workers_and_memory(run: RunSpec) -> tuple[int, float | None]:
 
 def _check_limits(store: ResultFile, mon: Monitor, n_missing: int, workers: int,
                   memory: float | None) -> None:
+    store.check_creation_space()
     try:
         free = float(free_bytes(store.existing_folder()))
     except OSError:
@@ -394,6 +395,37 @@ def _check_address_limits(store: ResultFile, client, mon: Monitor) -> None:
     limits_ = [w.get("memory_limit") or 0 for w in info]
     memory = min(limits_) if limits_ and min(limits_) > 0 else None
     _check_limits(store, mon, mon.total, max(len(limits_), 1), memory)
+
+
+def dry_run(spec: Spec, out: str, run: RunSpec | None = None) -> dict:
+    """What :func:`run_sweep` would do, without starting a cluster or touching ``out``:
+    samples stored and to compute, tasks, the estimate and its warnings (a refusal raises
+    the same one-line error the run would)."""
+    from pathlib import Path
+
+    from .results import read_results
+    run = run or spec.run
+    plan = Plan(spec)
+    n_done = 0
+    if Path(out).exists():
+        attrs, samples, _ = read_results(out)
+        if attrs["spec_hash"] != plan.spec_hash():
+            raise UserError(f"output {out!r} holds a different spec (hash "
+                            f"{attrs['spec_hash'][:12]}, this spec {plan.spec_hash()[:12]}); "
+                            "expected the same spec to resume, or choose another -o path")
+        n_done = len(set(samples["index"].tolist()))
+    n_missing = plan.n_samples - n_done
+    workers, memory = _workers_and_memory(run)
+    folder = Path(out).absolute().parent
+    while not folder.exists():
+        folder = folder.parent
+    est, warnings = limits.check(plan, n_missing, workers, memory, float(free_bytes(folder)),
+                                 repr(str(folder)))
+    per_task = run.samples_per_task or auto_task_size(n_missing, run)
+    return {"n_samples": plan.n_samples, "stored": n_done, "to_compute": n_missing,
+            "tasks": math.ceil(n_missing / per_task), "samples_per_task": per_task,
+            "workers": workers, "estimate": None if est is None else est.describe(),
+            "warnings": warnings}
 
 
 def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:

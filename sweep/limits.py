@@ -41,6 +41,7 @@ from workers.solvers import clarabel_bytes
 from .errors import UserError
 from .plan import Plan
 from .results import SAMPLE_DTYPE
+from .units import human_bytes, human_seconds
 
 LAYOUT_DIM = 1024  # above this the layout itself (D^2 arrays per block) is not built
 BASE_BYTES = 250e6
@@ -112,23 +113,6 @@ class Estimate:
                 + "; ".join(s.describe() for s in self.solves) + ")")
 
 
-def human_bytes(n: float) -> str:
-    for unit in ("B", "KB", "MB", "GB", "TB", "PB"):
-        if n < 1000 or unit == "PB":
-            return f"{n:.0f} {unit}" if unit in ("B", "KB", "MB") else f"{n:.1f} {unit}"
-        n /= 1000
-    return f"{n:.1f} PB"
-
-
-def human_seconds(s: float) -> str:
-    if s < 1:
-        return f"{s:.2g} s"
-    for unit, size in (("d", 86400), ("h", 3600), ("min", 60)):
-        if s >= size:
-            return f"{s / size:.1f} {unit}"
-    return f"{s:.0f} s"
-
-
 def _shadow(scenario: Scenario) -> Scenario:
     """The same parties with every nontrivial dimension set to 2 (same patterns)."""
     two = [2 if d > 1 else 1 for d in scenario.subsystem_dims]
@@ -166,20 +150,30 @@ def _backend(solver: str, kind: str, blocks: tuple[int, ...], variables: int,
     return "SCS"
 
 
-def solves_of(plan: Plan) -> list[Solve]:
-    """The robustness problems every worker compiles for ``plan``."""
-    comp, scen = plan.spec.compute, plan.scenario
+def solves_for(scen: Scenario, robustness, method: str, solver: str) -> list[Solve]:
+    """The robustness problems of ``robustness`` (kinds) with ``method`` on ``scen``."""
     D = scen.dim
     out = []
-    for kind in comp.robustness:
-        for method in methods_for(scen, comp.method):
-            blocks, variables, nnz = _layout_sizes(scen, method)
+    for kind in robustness:
+        for m in methods_for(scen, method):
+            blocks, variables, nnz = _layout_sizes(scen, m)
             if kind == "generalized":  # Omega: one more block of size D over the valid space
                 blocks, variables = blocks + (D,), variables + D * D // 3
                 nnz += (D * D // 3) * (D // 2 + 1)
-            backend = _backend(comp.solver, kind, blocks, variables, nnz)
-            out.append(Solve(kind, method, backend, blocks, variables, nnz))
+            backend = _backend(solver.upper(), kind, blocks, variables, nnz)
+            out.append(Solve(kind, m, backend, blocks, variables, nnz))
     return out
+
+
+def solves_of(plan: Plan) -> list[Solve]:
+    """The robustness problems every worker compiles for ``plan``."""
+    comp = plan.spec.compute
+    return solves_for(plan.scenario, comp.robustness, comp.method, comp.solver)
+
+
+def sample_seconds(dim: int, solves) -> float:
+    """Estimated seconds for one operator of dimension ``dim`` and these solves."""
+    return PER_SAMPLE_S + 3.0 * dim ** 3 / 1e9 + sum(s.seconds for s in solves)
 
 
 def estimate(plan: Plan, n_missing: int) -> Estimate:
@@ -191,7 +185,7 @@ def estimate(plan: Plan, n_missing: int) -> Estimate:
     layouts = n_methods * D * D * (9 + 8 * max((len(s.blocks) for s in solves), default=0))
     ops = OPS_COPIES * 16.0 * D * D
     worker = BASE_BYTES + ops + layouts + sum(s.bytes for s in solves)
-    seconds = PER_SAMPLE_S + 3.0 * D ** 3 / 1e9 + sum(s.seconds for s in solves)
+    seconds = sample_seconds(D, solves)
     per_row = 16.0 * D * D * (comp.store_operators + comp.store_witnesses)
     if comp.certify and comp.store_certificates:
         per_row += 16.0 * D * D + 8192

@@ -3,7 +3,8 @@
 HDF5 refuses a second opener of a file that a process holds open for writing, and a reader
 that bypasses that lock could see a write half done.  So the driver (the only writer) keeps a
 small lock file beside the results, ``OUT.h5.lock``, for as long as it has the file open, and
-uses POSIX record locks (``fcntl.lockf``) on two of its bytes:
+uses record locks on two of its bytes (Linux open-file-description locks, which also work
+between a reader and a writer in one process; classic POSIX locks elsewhere):
 
 * byte 1, **alive**: held exclusively by the writer from opening to closing the file.  A
   process that can take it (shared, without waiting) knows no writer is running, whatever
@@ -31,6 +32,7 @@ import errno
 import fcntl
 import os
 import shutil
+import struct
 import sys
 import time
 from pathlib import Path
@@ -53,9 +55,22 @@ def lock_path(results: str | Path) -> Path:
     return p.with_name(p.name + LOCK_SUFFIX)
 
 
+OFD = getattr(fcntl, "F_OFD_SETLK", None)
+_TYPES = {fcntl.LOCK_SH: fcntl.F_RDLCK, fcntl.LOCK_EX: fcntl.F_WRLCK, fcntl.LOCK_UN: fcntl.F_UNLCK}
+
+
+def _lock(fd: int, mode: int, byte: int) -> None:
+    """Lock (``LOCK_SH``/``LOCK_EX``) or unlock (``LOCK_UN``) one byte, without waiting."""
+    if OFD is None:
+        fcntl.lockf(fd, mode | (0 if mode == fcntl.LOCK_UN else fcntl.LOCK_NB), 1, byte)
+        return
+    # struct flock: l_type, l_whence, l_start, l_len, l_pid (0 for OFD locks), padded to 32
+    fcntl.fcntl(fd, OFD, struct.pack("hhqqi4x", _TYPES[mode], os.SEEK_SET, byte, 1, 0))
+
+
 def _try(fd: int, mode: int, byte: int) -> bool:
     try:
-        fcntl.lockf(fd, mode | fcntl.LOCK_NB, 1, byte)
+        _lock(fd, mode, byte)
         return True
     except OSError as exc:
         if exc.errno in (errno.EACCES, errno.EAGAIN):
@@ -74,7 +89,7 @@ def _wait(fd: int, mode: int, byte: int, patience: float) -> bool:
 
 
 def _unlock(fd: int, byte: int) -> None:
-    fcntl.lockf(fd, fcntl.LOCK_UN, 1, byte)
+    _lock(fd, fcntl.LOCK_UN, byte)
 
 
 def writer_alive(results: str | Path) -> bool:

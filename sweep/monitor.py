@@ -17,7 +17,7 @@ import time
 from collections import Counter
 from typing import Any, TextIO
 
-from .limits import human_seconds
+from .units import human_seconds
 from .progress import HEARTBEAT, ProgressFile, iso
 
 WIDTH = 30

@@ -109,6 +109,23 @@ def summarise(attrs: dict[str, Any], samples: np.ndarray, points: np.ndarray,
 CI_NAMES = {"wilson": "Wilson score", "exact": "Clopper-Pearson (exact)"}
 
 
+def strict_json(value: Any) -> Any:
+    """``value`` with nan and infinities as None, so ``json.dumps`` writes strict JSON
+    (a fraction over zero decided samples is nan)."""
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: strict_json(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [strict_json(v) for v in value]
+    return value
+
+
+def to_json(summary: dict[str, Any]) -> str:
+    """The summary as strict JSON (``orderless summary --json``)."""
+    return json.dumps(strict_json(summary), indent=2, allow_nan=False)
+
+
 def _fmt(x: float) -> str:
     return "nan" if not np.isfinite(x) else f"{x:.4g}"
 
@@ -132,8 +149,8 @@ def format_table(summary: dict[str, Any]) -> str:
             f"{_status_line(summary)}\n"
             f"(frac: fraction nonseparable of the certified verdicts, 95% CI: "
             f"{CI_NAMES.get(summary['ci_method'], summary['ci_method'])}; R_r med: median "
-            "random robustness, or of its upper bound where only bounds exist; t_solve: median "
-            "solver seconds per sample)")
+            "random robustness, or of its upper bound where only bounds exist, as max(R, 0); "
+            "t_solve: median solver seconds per sample)")
     cols = summary["axes"] + ["n", "cert", "nonsep", "frac", "95% CI", "undec", "invalid",
                               "failed", "error", "R_r med", "t_solve"]
     has_game = any("game" in p for p in summary["points"])
@@ -145,7 +162,8 @@ def format_table(summary: dict[str, Any]) -> str:
             str(p["n"]), str(p["certified"]), str(p["nonseparable"]), _fmt(fr["fraction"]),
             f"[{_fmt(fr['ci_low'])}, {_fmt(fr['ci_high'])}]", str(p["undecided"]),
             str(p["invalid"]), str(p["failed"]), str(p["error"]),
-            _fmt(p.get("r_random", p.get("r_random_hi", {})).get("q50", float("nan"))),
+            _fmt(max(p.get("r_random", p.get("r_random_hi", {})).get("q50", float("nan")),
+                     0.0)),
             _fmt(p.get("solve_time_share", {}).get("median", float("nan")))]
         if has_game:
             vals.append(_fmt(p["game"]["violating"]["fraction"]))

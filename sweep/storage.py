@@ -34,6 +34,7 @@ from .live import WriterLock, retry_blocked
 from .plan import Plan
 from .results import FORMAT, RENAMED, SAMPLE_DTYPE, check_format, mark_dead
 from .spec import SCHEMA_VERSION
+from .units import human_bytes
 
 PACKAGES = ("orderless", "numpy", "scipy", "scs", "clarabel", "cvxpy", "dask", "distributed",
             "h5py", "pydantic")
@@ -77,14 +78,6 @@ def to_record(rows: list[dict[str, Any]], seeds: list[int], run: int,
 def free_bytes(folder: Path) -> int:
     st = os.statvfs(folder)
     return st.f_bavail * st.f_frsize
-
-
-def human(n: float) -> str:
-    for unit in ("B", "KB", "MB", "GB", "TB"):
-        if abs(n) < 1000 or unit == "TB":
-            return f"{n:.0f} {unit}" if unit == "B" else f"{n:.1f} {unit}"
-        n /= 1000
-    return f"{n:.1f} TB"
 
 
 def _os_reason(exc: OSError) -> str:
@@ -225,12 +218,10 @@ class ResultFile:
         """Create the file if it does not exist yet (complete or not at all)."""
         if self.f is not None:
             return
-        plan, spec = self.plan, self.spec
+        plan = self.plan
         info = {"n_samples": plan.n_samples, "files": plan.file_digests,
                 "spec_hash": plan.spec_hash()}  # reads the files before anything is created
-        need = SLACK + plan.n_points * 8 * max(len(plan.axis_names), 1) + 64 * 1024 \
-            + CHUNK_ROWS * SAMPLE_DTYPE.itemsize
-        self.ensure_space(need, "to create the results file")
+        self.check_creation_space()
         tmp = self.path.with_name(self.path.name + ".creating")
         try:
             self.folder.mkdir(parents=True, exist_ok=True)
@@ -250,6 +241,15 @@ class ResultFile:
             raise EnvironmentFault(f"cannot create the lock file {str(self.lock.path)!r} "
                                    f"({_os_reason(exc)}); choose a writable -o path") from None
         self.f = self._h5_open()
+
+    def check_creation_space(self) -> None:
+        """Refuse (disk full) when a new results file would not fit (no-op if it exists)."""
+        if self.f is not None:
+            return
+        plan = self.plan
+        need = SLACK + plan.n_points * 8 * max(len(plan.axis_names), 1) + 64 * 1024 \
+            + CHUNK_ROWS * SAMPLE_DTYPE.itemsize
+        self.ensure_space(need, "to create the results file")
 
     def _create(self, f: h5py.File, info: dict[str, Any]) -> None:
         plan, spec = self.plan, self.spec
@@ -297,8 +297,8 @@ class ResultFile:
             committed = int(self.f.attrs["committed"]) if self.f is not None else 0
             kept = (f"{committed} samples are kept in {str(self.path)!r}" if self.f is not None
                     else "nothing was written")
-            raise EnvironmentFault(f"disk full: {human(free)} free in {str(self.folder)!r}, "
-                                   f"{human(need)} needed {what}; {kept}: free space (or move "
+            raise EnvironmentFault(f"disk full: {human_bytes(free)} free in {str(self.folder)!r}, "
+                                   f"{human_bytes(need)} needed {what}; {kept}: free space (or move "
                                    "the file) and rerun the same command to resume")
 
     def _write_size(self, rows: list[dict[str, Any]]) -> int:
