@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 import json
 
-from .execute import dry_run, run_sweep
+from .execute import run_sweep
+from .preflight import dry_run
 from .spec import load_spec
 from .spec_run import resolve_run
 from .stats import format_table, summarise, to_json

@@ -21,21 +21,21 @@ from __future__ import annotations
 import contextlib
 import math
 import os
-import signal
-import threading
 import time
 import uuid
 from dataclasses import dataclass
 from typing import Iterable, Iterator
 
-from . import limits
 from .errors import EnvironmentFault, RunStopped, UserError
 from .monitor import Monitor
 from .plan import Plan, missing_indices
+from .preflight import (auto_task_size, check_address_limits, check_limits,  # noqa: F401
+                        workers_and_memory)
 from .progress import ProgressFile
+from .signals import RunSignals
 from .spec import Spec
 from .spec_run import RunSpec
-from .storage import ResultFile, free_bytes
+from .storage import ResultFile
 from .task import run_samples, warm_up
 
 ONE_THREAD = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
@@ -124,84 +124,7 @@ def open_client(run: RunSpec) -> Iterator:
             yield client
 
 
-MAX_AUTO_TASK = 32  # samples per task when the size is automatic: enough to batch the IPM
-TASKS_PER_WORKER = 8  # ... and never so few tasks that the last ones leave workers idle
 WINDOW_PER_THREAD = 4  # tasks submitted ahead per worker thread (the rest wait in the driver)
-
-
-def auto_task_size(n_missing: int, run: RunSpec) -> int:
-    """Samples per task when ``run.samples_per_task`` is unset: as large as useful for the
-    batched solver (32) while leaving at least 8 tasks per worker for load balance."""
-    if run.cluster == "serial":
-        return MAX_AUTO_TASK
-    if run.cluster == "jobqueue" and run.jobqueue is not None:
-        workers = run.jobqueue.jobs * run.jobqueue.processes
-    else:
-        workers = run.workers or os.cpu_count() or 1
-    return max(1, min(MAX_AUTO_TASK, math.ceil(n_missing / (TASKS_PER_WORKER * workers))))
-
-
-class _Signals:
-    """Ctrl-C, SIGTERM and SIGHUP during a run (main thread only).
-
-    They raise KeyboardInterrupt / :class:`RunStopped`, except inside :meth:`critical`
-    (an HDF5 write), where they are held and raised right after it.  SIGHUP is left alone
-    when it is ignored (``nohup``).
-    """
-
-    def __init__(self) -> None:
-        self.active = threading.current_thread() is threading.main_thread()
-        self.inside = False
-        self.pending: BaseException | None = None
-        self.old: dict[int, object] = {}
-
-    def _raise(self, exc: BaseException) -> None:
-        if self.inside:
-            self.pending = self.pending or exc
-        else:
-            raise exc
-
-    def _handler(self, signum: int, frame) -> None:
-        if signum == signal.SIGINT:
-            self._raise(KeyboardInterrupt())
-        else:
-            self._raise(RunStopped(signum, signal.Signals(signum).name))
-
-    def __enter__(self) -> "_Signals":
-        if self.active:
-            for sig in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
-                if signal.getsignal(sig) != signal.SIG_IGN:
-                    self.old[sig] = signal.signal(sig, self._handler)
-        return self
-
-    def __exit__(self, *exc: object) -> None:
-        for sig, handler in self.old.items():
-            signal.signal(sig, handler)
-
-    @contextlib.contextmanager
-    def critical(self) -> Iterator[None]:
-        self.inside = True
-        try:
-            yield
-        finally:
-            self.inside = False
-        if self.pending is not None:
-            exc, self.pending = self.pending, None
-            raise exc
-
-    @contextlib.contextmanager
-    def children_ignore_ctrl_c(self, local: bool) -> Iterator[None]:
-        """While local worker processes are spawned, SIGINT is ignored, so they inherit
-        that and a Ctrl-C in the terminal reaches the driver only (a Ctrl-C in these few
-        seconds is lost)."""
-        if not (local and self.active and signal.SIGINT in self.old):
-            yield
-            return
-        signal.signal(signal.SIGINT, signal.SIG_IGN)
-        try:
-            yield
-        finally:
-            signal.signal(signal.SIGINT, self._handler)
 
 
 def _kept(store: ResultFile) -> str:
@@ -230,7 +153,7 @@ def _task_failure(exc: Exception, client, run: RunSpec, store: ResultFile) -> Us
                             f"{_kept(store)}; rerun the same command to resume")
 
 
-def _store_rows(store: ResultFile, mon: Monitor, sig: _Signals, rows: list) -> None:
+def _store_rows(store: ResultFile, mon: Monitor, sig: RunSignals, rows: list) -> None:
     with sig.critical():
         mon.add(rows, store.append(rows))
 
@@ -244,7 +167,7 @@ def _started(store: ResultFile, run: RunSpec, mon: Monitor) -> None:
 
 
 def _run_dask(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run: RunSpec,
-              mon: Monitor, sig: _Signals, n_tasks: int) -> None:
+              mon: Monitor, sig: RunSignals, n_tasks: int) -> None:
     from distributed import as_completed
     t0 = time.monotonic()
     with contextlib.ExitStack() as stack:
@@ -253,7 +176,7 @@ def _run_dask(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run
         with sig.children_ignore_ctrl_c(run.cluster == "local"), _worker_setup(run):
             client = stack.enter_context(open_client(run))
         if run.cluster == "address":
-            _check_address_limits(store, client, mon)
+            check_address_limits(store, client, mon)
         mon.phase("compiling", "robustness problems on every worker")
         client.run(warm_up, task_json)  # imports and compiled problems, on every worker
         startup = round(time.monotonic() - t0, 3)
@@ -296,7 +219,7 @@ def _run_dask(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run
 
 
 def _run_serial(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run: RunSpec,
-                mon: Monitor, sig: _Signals, n_tasks: int) -> None:
+                mon: Monitor, sig: RunSignals, n_tasks: int) -> None:
     mon.phase("compiling", "robustness problems in this process")
     warm_up(task_json)
     _started(store, run, mon)
@@ -361,79 +284,12 @@ def _compute_phase(store: ResultFile) -> Iterator[None]:
             store.run_entry["compute_s"] = round(time.monotonic() - t0, 3)
 
 
-def _workers_and_memory(run: RunSpec) -> tuple[int, float | None]:
-    """Workers and the memory each may use, known before the cluster starts."""
-    import psutil
-    if run.cluster == "serial":
-        return 1, float(psutil.virtual_memory().available)
-    if run.cluster == "local":
-        n = run.workers or os.cpu_count() or 1
-        return n, psutil.virtual_memory().total / n
-    if run.cluster == "jobqueue" and run.jobqueue is not None:
-        from dask.utils import parse_bytes
-        jq = run.jobqueue
-        return jq.jobs * jq.processes, parse_bytes(jq.memory) / jq.processes
-    return 1, None  # address: known once connected
-
-
-def _check_limits(store: ResultFile, mon: Monitor, n_missing: int, workers: int,
-                  memory: float | None) -> None:
-    store.check_creation_space()
-    try:
-        free = float(free_bytes(store.existing_folder()))
-    except OSError:
-        free = None
-    est, warnings = limits.check(store.plan, n_missing, workers, memory, free,
-                                 repr(str(store.folder)))
-    store.estimate = est
-    for w in warnings:
-        mon.note(w)
-
-
-def _check_address_limits(store: ResultFile, client, mon: Monitor) -> None:
-    info = client.scheduler_info()["workers"].values()
-    limits_ = [w.get("memory_limit") or 0 for w in info]
-    memory = min(limits_) if limits_ and min(limits_) > 0 else None
-    _check_limits(store, mon, mon.total, max(len(limits_), 1), memory)
-
-
-def dry_run(spec: Spec, out: str, run: RunSpec | None = None) -> dict:
-    """What :func:`run_sweep` would do, without starting a cluster or touching ``out``:
-    samples stored and to compute, tasks, the estimate and its warnings (a refusal raises
-    the same one-line error the run would)."""
-    from pathlib import Path
-
-    from .results import read_results
-    run = run or spec.run
-    plan = Plan(spec)
-    n_done = 0
-    if Path(out).exists():
-        attrs, samples, _ = read_results(out)
-        if attrs["spec_hash"] != plan.spec_hash():
-            raise UserError(f"output {out!r} holds a different spec (hash "
-                            f"{attrs['spec_hash'][:12]}, this spec {plan.spec_hash()[:12]}); "
-                            "expected the same spec to resume, or choose another -o path")
-        n_done = len(set(samples["index"].tolist()))
-    n_missing = plan.n_samples - n_done
-    workers, memory = _workers_and_memory(run)
-    folder = Path(out).absolute().parent
-    while not folder.exists():
-        folder = folder.parent
-    est, warnings = limits.check(plan, n_missing, workers, memory, float(free_bytes(folder)),
-                                 repr(str(folder)))
-    per_task = run.samples_per_task or auto_task_size(n_missing, run)
-    return {"n_samples": plan.n_samples, "stored": n_done, "to_compute": n_missing,
-            "tasks": math.ceil(n_missing / per_task), "samples_per_task": per_task,
-            "workers": workers, "estimate": None if est is None else est.describe(),
-            "warnings": warnings}
-
-
 def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
     """Compute every sample of ``spec`` missing from ``out`` on the cluster ``run``."""
     run = run or spec.run
     plan = Plan(spec)
     t0 = time.monotonic()
-    with ResultFile(out, plan) as store, _Signals() as sig:
+    with ResultFile(out, plan) as store, RunSignals() as sig:
         n_missing = plan.n_samples - store.n_done
         per_task = run.samples_per_task or auto_task_size(n_missing, run)
         progress = ProgressFile(out, {"spec_hash": plan.spec_hash(), "host": os.uname().nodename,
@@ -444,7 +300,7 @@ def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
         try:
             with mon:
                 if run.cluster != "address":
-                    _check_limits(store, mon, n_missing, *_workers_and_memory(run))
+                    check_limits(store, mon, n_missing, *workers_and_memory(run))
                 tasks = plan.tasks(missing_indices(store.done_mask()), per_task)
                 n_tasks = math.ceil(n_missing / per_task)
                 if n_missing == 0:

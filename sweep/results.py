@@ -25,6 +25,9 @@ schema 3 files are read with those columns filled in (``solve_batch`` 0 = unknow
 from __future__ import annotations
 
 import json
+import platform
+import time
+from importlib import metadata
 from pathlib import Path
 from typing import Any
 
@@ -45,11 +48,45 @@ SAMPLE_DTYPE = np.dtype([
     ("aux", "f8"), ("certified", "?"), ("cert_margin", "f8"), ("passes", "i8"),
     ("run", "i4"), ("worker", "S64"), ("message", "S200"),
 ])
+PACKAGES = ("orderless", "numpy", "scipy", "scs", "clarabel", "cvxpy", "dask", "distributed",
+            "h5py", "pydantic")
 # schema 3 column name -> schema 4 name
 RENAMED = {"solve_time": "solve_time_share"}
 # states of a run entry: "running" while its driver lives; "dead" when a later open found
 # it still "running" with no driver (SIGKILL, crash, power loss)
 RUN_STATES = ("running", "complete", "interrupted", "terminated", "failed", "dead")
+
+
+def versions() -> dict[str, str]:
+    out = {"python": platform.python_version()}
+    for name in PACKAGES:
+        try:
+            out[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            out[name] = "not installed"
+    return out
+
+
+def now() -> str:
+    return time.strftime("%Y-%m-%dT%H:%M:%S%z")
+
+
+def to_record(rows: list[dict[str, Any]], seeds: list[int], run: int,
+              dtype: np.dtype = SAMPLE_DTYPE) -> np.ndarray:
+    """Rows as a record array of ``dtype`` (the current layout, or an older file's)."""
+    rec = np.zeros(len(rows), dtype=dtype)
+    for j, (row, seed) in enumerate(zip(rows, seeds)):
+        for name in dtype.names:
+            key = RENAMED.get(name, name)
+            if name == "seed":
+                rec[j][name] = seed
+            elif name == "run":
+                rec[j][name] = run
+            elif dtype[name].kind == "S":
+                rec[j][name] = str(row[key]).encode("utf-8", "replace")[:dtype[name].itemsize]
+            else:
+                rec[j][name] = row[key]
+    return rec
 
 
 def normalize(samples: np.ndarray) -> np.ndarray:

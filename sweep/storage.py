@@ -18,11 +18,9 @@ import contextlib
 import errno
 import json
 import os
-import platform
 import socket
 import time
 import uuid
-from importlib import metadata
 from pathlib import Path
 from typing import Any
 
@@ -32,47 +30,13 @@ import numpy as np
 from .errors import EnvironmentFault, UserError
 from .live import WriterLock, retry_blocked
 from .plan import Plan
-from .results import FORMAT, RENAMED, SAMPLE_DTYPE, check_format, mark_dead
+from .results import FORMAT, SAMPLE_DTYPE, check_format, mark_dead, now, to_record, versions
 from .spec import SCHEMA_VERSION
 from .units import human_bytes
 
-PACKAGES = ("orderless", "numpy", "scipy", "scs", "clarabel", "cvxpy", "dask", "distributed",
-            "h5py", "pydantic")
 CHUNK_ROWS = 256
 SLACK = 512 * 1024  # bytes kept free beyond a write's estimate (metadata, the last run entry)
 POINTS_BLOCK = 1 << 16  # grid points written per block
-
-
-def versions() -> dict[str, str]:
-    out = {"python": platform.python_version()}
-    for name in PACKAGES:
-        try:
-            out[name] = metadata.version(name)
-        except metadata.PackageNotFoundError:
-            out[name] = "not installed"
-    return out
-
-
-def now() -> str:
-    return time.strftime("%Y-%m-%dT%H:%M:%S%z")
-
-
-def to_record(rows: list[dict[str, Any]], seeds: list[int], run: int,
-              dtype: np.dtype = SAMPLE_DTYPE) -> np.ndarray:
-    """Rows as a record array of ``dtype`` (the current layout, or an older file's)."""
-    rec = np.zeros(len(rows), dtype=dtype)
-    for j, (row, seed) in enumerate(zip(rows, seeds)):
-        for name in dtype.names:
-            key = RENAMED.get(name, name)
-            if name == "seed":
-                rec[j][name] = seed
-            elif name == "run":
-                rec[j][name] = run
-            elif dtype[name].kind == "S":
-                rec[j][name] = str(row[key]).encode("utf-8", "replace")[:dtype[name].itemsize]
-            else:
-                rec[j][name] = row[key]
-    return rec
 
 
 def free_bytes(folder: Path) -> int:
@@ -441,4 +405,4 @@ def _rounded(value: Any) -> Any:
 
 
 # kept for callers of the schema-3 module layout
-from .results import read_results  # noqa: E402,F401
+from .results import read_results  # noqa: E402,F401 - re-export
