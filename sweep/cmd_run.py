@@ -9,8 +9,6 @@ from .execute import run_sweep
 from .preflight import dry_run
 from .spec import load_spec
 from .spec_run import resolve_run
-from .stats import format_table, summarise, to_json
-from .results import read_results
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -39,6 +37,8 @@ def cli_overrides(args: argparse.Namespace) -> dict:
 
 
 def print_summary(path: str, as_json: bool) -> None:
+    from .results import read_results
+    from .stats import format_table, summarise, to_json  # scipy.stats: ~1 s to import
     summary = summarise(*read_results(path))
     print(to_json(summary) if as_json else format_table(summary))
 

@@ -36,9 +36,12 @@ def render(st: dict) -> str:
         speed = (f", {rate:.3g} samples/s, ETA {human_seconds(eta)}" if rate and
                  eta is not None and state == "running" else "")
         ago = st.get("updated_ago_s")
+        stalled = (state == "running" and ago is not None and ago > 3 * HEARTBEAT)
         lines.append(f"this run   {prog.get('computed', 0)}/{prog.get('to_compute', 0)} "
                      f"computed{speed}"
-                     + (f" (updated {human_seconds(ago)} ago)" if ago is not None else ""))
+                     + (f" (updated {human_seconds(ago)} ago)" if ago is not None else "")
+                     + (": no heartbeat since, is the driver stopped (Ctrl-Z) or stuck?"
+                        if stalled else ""))
         counts = ", ".join(f"{k} {v}" for k, v in sorted((prog.get("statuses") or {}).items()))
         if counts:
             lines.append(f"statuses   {counts}")

@@ -23,6 +23,7 @@ import math
 import os
 import time
 import uuid
+from concurrent.futures import CancelledError
 from dataclasses import dataclass
 from typing import Iterable, Iterator
 
@@ -132,20 +133,20 @@ def _kept(store: ResultFile) -> str:
 
 
 def _task_failure(exc: Exception, client, run: RunSpec, store: ResultFile) -> UserError:
-    """The one-line error for a task that did not return rows."""
-    from concurrent.futures import CancelledError
-
+    """The one-line error for a task that did not return rows (or a cluster call that
+    failed)."""
     from distributed import KilledWorker
     if isinstance(exc, UserError):
         return exc
     if isinstance(exc, KilledWorker):
-        return EnvironmentFault(f"a task killed its worker several times (out of memory? "
-                                f"{str(exc).splitlines()[0][:120]}); {_kept(store)}: give the "
-                                "workers more memory, then rerun the same command to resume")
+        return EnvironmentFault(f"workers kept dying while running a task (out of memory, or "
+                                f"killed?): {str(exc).splitlines()[0][:160]}; {_kept(store)}: "
+                                "check the workers' memory and logs, then rerun the same "
+                                "command to resume")
     lost = getattr(client, "status", "running") != "running"
     if lost or isinstance(exc, (CancelledError, OSError, TimeoutError)):
         where = f"at {run.address}" if run.cluster == "address" else "of the cluster"
-        return EnvironmentFault(f"lost the dask scheduler {where} mid-run "
+        return EnvironmentFault(f"lost the dask scheduler {where} "
                                 f"({type(exc).__name__}); {_kept(store)}: restart the scheduler "
                                 "and its workers, then rerun the same command to resume")
     return EnvironmentFault(f"a task failed on a worker ({type(exc).__name__}: "
@@ -175,14 +176,19 @@ def _run_dask(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run
         mon.phase("starting cluster", _describe(run))
         with sig.children_ignore_ctrl_c(run.cluster == "local"), _worker_setup(run):
             client = stack.enter_context(open_client(run))
-        if run.cluster == "address":
-            check_address_limits(store, client, mon)
-        mon.phase("compiling", "robustness problems on every worker")
-        client.run(warm_up, task_json)  # imports and compiled problems, on every worker
+        try:
+            if run.cluster == "address":
+                check_address_limits(store, client, mon)
+            mon.phase("compiling", "robustness problems on every worker")
+            client.run(warm_up, task_json)  # imports and compiled problems, on every worker
+            threads = sum(w.get("nthreads", 1)
+                          for w in client.scheduler_info()["workers"].values())
+        except (OSError, TimeoutError, CancelledError) as exc:  # the scheduler went away
+            _quiet_dask()
+            raise _task_failure(exc, client, run, store) from None
         startup = round(time.monotonic() - t0, 3)
         _started(store, run, mon)
         store.run_entry["startup_s"] = startup
-        threads = sum(w.get("nthreads", 1) for w in client.scheduler_info()["workers"].values())
         window = max(WINDOW_PER_THREAD * max(threads, 1), 8)
         tag = uuid.uuid4().hex[:8]
         it = iter(tasks)

@@ -35,7 +35,9 @@ class Monitor:
         self.done = 0
         self.t_start = time.monotonic()
         self.t_compute: float | None = None
+        self.t_end: float | None = None  # when the last sample arrived (the rate stops there)
         self.last_line = self.last_beat = 0.0
+        self._width = 0
         self.statuses: Counter = Counter()
         self.verdicts: Counter = Counter()
         self.last_error: dict[str, Any] | None = None
@@ -70,6 +72,8 @@ class Monitor:
         with self._lock:
             self.done += new
             self.stored += new
+            if self.done >= self.total:
+                self.t_end = time.monotonic()
             for r in rows:
                 self.statuses[str(r.get("status", ""))] += 1
                 self.verdicts[str(r.get("verdict", ""))] += 1
@@ -85,10 +89,12 @@ class Monitor:
             t = time.monotonic()
             if t - self.last_beat >= HEARTBEAT:
                 self._write()
-            if not self.enabled or self.t_compute is None:
+            if not self.enabled or self.t_compute is None or (self.t_end and not force):
                 return
             if self.tty:
-                self.stream.write("\r" + self._line() + " ")
+                line = self._line()
+                self.stream.write("\r" + line.ljust(self._width))
+                self._width = len(line)
                 self._drawn = True
                 self.stream.flush()
             elif force or t - self.last_line >= self.interval:
@@ -98,13 +104,13 @@ class Monitor:
     def finish(self, state: str, error: str | None = None) -> None:
         with self._lock:
             self._clear()
-            self._write(state=state, phase="finished", error=error)
+            self._write(state=state, phase="finished", phase_detail=state, error=error)
 
     # --- helpers ------------------------------------------------------------------------
     def rate(self) -> float | None:
         if self.t_compute is None or self.done == 0:
             return None
-        return self.done / max(time.monotonic() - self.t_compute, 1e-9)
+        return self.done / max((self.t_end or time.monotonic()) - self.t_compute, 1e-9)
 
     def _line(self) -> str:
         rate = self.rate()
@@ -129,6 +135,7 @@ class Monitor:
         if self._drawn:
             self.stream.write("\n")
             self._drawn = False
+            self._width = 0
 
     def _write(self, **fields: Any) -> None:
         if self.file is None:

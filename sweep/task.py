@@ -22,8 +22,6 @@ from typing import Any
 
 import numpy as np
 
-from workers.games import get_game
-from workers.seesaw import seesaw
 from workers.certified import analyse_and_certify_many
 from workers.robustness import get_problem
 from workers.separability import analyse_many, methods_for
@@ -126,6 +124,8 @@ def _record(comp, W: np.ndarray, row: dict[str, Any], res, cv) -> None:
 
 
 def _game(plan: Plan, index: int, W: np.ndarray, row: dict[str, Any]) -> None:
+    from workers.games import get_game
+    from workers.seesaw import seesaw  # imports cvxpy (~1 s): only when a game is asked for
     g = plan.spec.compute.game
     dims = [(p.d_in, p.d_out) for p in plan.scenario.parties]
     seed = np.random.SeedSequence(plan.spec.compute.seed, spawn_key=(index, 1))

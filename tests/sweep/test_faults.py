@@ -133,13 +133,19 @@ def _fast_refusal(open_client):
     return wrapped
 
 
+def _progress_of(proc, out, n):
+    """Whether the progress file is this process's and counts ``n`` samples computed."""
+    prog = read_progress(out) or {}
+    return prog.get("pid") == proc.pid and prog.get("computed", 0) >= n
+
+
 def _started(spec, out, n, *extra, **popen):
     """Start ``orderless run`` and return once its progress file counts ``n`` computed."""
     proc = subprocess.Popen([sys.executable, "-m", "sweep.cli", "run", spec, "-o", out,
                              "--no-progress", *extra], stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, **popen)
     deadline = time.monotonic() + 180
-    while (read_progress(out) or {}).get("computed", 0) < n:
+    while not _progress_of(proc, out, n):
         assert proc.poll() is None, proc.communicate()[1].decode()
         assert time.monotonic() < deadline, "no progress within 180 s"
         time.sleep(0.05)
@@ -191,41 +197,55 @@ def test_ctrl_c_on_local_cluster_prints_one_line(write_spec, tmp_path):
 
 
 @pytest.mark.cluster
-def test_scheduler_dying_mid_run(write_spec, tmp_path):
-    """The scheduler of an address cluster is killed after the first results: one line
-    naming the lost scheduler, exit 3, the rows stored so far kept (before issue 12: a
-    58-line FutureCancelledError traceback)."""
+def test_workers_dying_then_scheduler_dying(write_spec, tmp_path):
+    """An address cluster (scheduler allowing no task failure, one worker with a nanny).
+    First the worker process is killed while it runs a task, as the OOM killer would: dask
+    gives up on the task (KilledWorker) and the run ends with one line, exit 3.  Then the
+    rerun resumes and the scheduler is killed after some results: one line naming the lost
+    scheduler, exit 3 (before issue 12: a 58-line FutureCancelledError traceback).  The
+    rows stored so far are kept both times."""
+    import psutil
+
     from tests.sweep.test_cluster import _free_port
     port = _free_port()
     addr = f"tcp://127.0.0.1:{port}"
-    env = {**os.environ, "DASK_CONFIG": str(tmp_path / "dask")}
+    env = {**os.environ, "DASK_CONFIG": str(tmp_path / "dask"),
+           "DASK_DISTRIBUTED__SCHEDULER__ALLOWED_FAILURES": "0"}
     sched = subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_scheduler", "--host",
                               "127.0.0.1", "--port", str(port), "--dashboard-address", ":0",
                               "--no-show"], env=env, stdout=subprocess.DEVNULL,
                              stderr=subprocess.DEVNULL)
-    worker = subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_worker", addr,
-                               "--nthreads", "1", "--no-dashboard"], env=env,
-                              stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    nanny = subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_worker", addr,
+                              "--nthreads", "1", "--no-dashboard"], env=env,
+                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     try:
         spec = write_spec({"scenario": {"dims": [2, 2, 2, 2]},
                            "family": {"kind": "ensemble", "measure": "valid_direction"},
-                           "compute": {"samples": 2000, "seed": 3},
+                           "compute": {"samples": 3000, "seed": 3},
                            "run": {"samples_per_task": 1}})
         out = tmp_path / "s.h5"
         from distributed import Client
         with Client(addr, timeout="30s") as c:
             c.wait_for_workers(1, timeout=60)
         proc = _started(spec, out, 2, "--scheduler", addr, env=env)
+        for child in psutil.Process(nanny.pid).children(recursive=True):
+            child.kill()  # the worker process; the nanny starts a new one
+        _, err = proc.communicate(timeout=120)
+        err = err.decode()
+        assert proc.returncode == 3 and len(err.strip().splitlines()) == 1, err
+        assert "workers kept dying while running a task" in err
+        runs, first, _ = _runs(out)
+        assert runs[-1]["state"] == "failed" and first >= 2
+        proc = _started(spec, out, 2, "--scheduler", addr, env=env)
         sched.kill()
         _, err = proc.communicate(timeout=120)
         err = err.decode()
-        assert proc.returncode == 3, err
-        assert len(err.strip().splitlines()) == 1, err
-        assert f"lost the dask scheduler at {addr} mid-run" in err
+        assert proc.returncode == 3 and len(err.strip().splitlines()) == 1, err
+        assert f"lost the dask scheduler at {addr} (" in err
         runs, committed, _ = _runs(out)
-        assert runs[-1]["state"] == "failed" and committed >= 2
+        assert [r["state"] for r in runs] == ["failed", "failed"] and committed >= first + 2
     finally:
-        for p in (worker, sched):
+        for p in (nanny, sched):
             p.kill()
             p.wait(timeout=30)
 

@@ -87,7 +87,8 @@ def _start_and_wait(spec, out, n_done, **popen):
                             cwd=REPO, stderr=subprocess.PIPE, stdout=subprocess.DEVNULL,
                             **popen)
     deadline = time.monotonic() + 120
-    while (read_progress(out) or {}).get("computed", 0) < n_done:
+    while (read_progress(out) or {}).get("pid") != proc.pid or \
+            read_progress(out).get("computed", 0) < n_done:
         assert proc.poll() is None, "driver ended before it could be stopped"
         assert time.monotonic() < deadline, "no progress within 120 s"
         time.sleep(0.05)
