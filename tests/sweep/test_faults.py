@@ -227,6 +227,14 @@ def test_workers_dying_then_scheduler_dying(write_spec, tmp_path):
         from distributed import Client
         with Client(addr, timeout="30s") as c:
             c.wait_for_workers(1, timeout=60)
+        # the workers' memory is known once connected: four qutrit parties do not fit
+        huge = write_spec({"scenario": {"dims": [3] * 8},
+                           "family": {"kind": "ensemble", "measure": "valid_direction"}},
+                          "huge.yaml")
+        code, _, err = cli("run", huge, "-o", tmp_path / "q.h5", "--scheduler", addr,
+                           "--no-progress", env=env)
+        assert code == 2 and "a worker has here (1 worker)" in err, err
+        assert not (tmp_path / "q.h5").exists()
         proc = _started(spec, out, 2, "--scheduler", addr, env=env)
         for child in psutil.Process(nanny.pid).children(recursive=True):
             child.kill()  # the worker process; the nanny starts a new one

@@ -54,3 +54,17 @@ def test_refusals_and_warnings():
         check(plan, 4, 2, 1e6, 1e12, "'.'")
     _, warnings = check(plan, 10 ** 6, 1, 8e9, 1e12, "'.'")
     assert len(warnings) == 1 and "for 1000000 samples on 1 worker" in warnings[0]
+
+
+def test_workers_memory_known_before_start():
+    """Local workers share the machine's memory; batch-queue jobs split theirs among their
+    worker processes (the estimate is checked before any job is submitted)."""
+    import psutil
+
+    from sweep.preflight import workers_and_memory
+    from sweep.spec_run import RunSpec
+    jq = RunSpec.model_validate({"cluster": "jobqueue", "jobqueue": {
+        "system": "slurm", "memory": "8GB", "processes": 2, "jobs": 3}})
+    assert workers_and_memory(jq) == (6, 4e9)
+    n, memory = workers_and_memory(RunSpec(workers=4))
+    assert n == 4 and memory == pytest.approx(psutil.virtual_memory().total / 4)
