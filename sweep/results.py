@@ -18,8 +18,8 @@ Layout (plain h5py reads everything; :mod:`sweep.storage` writes it):
 
 Schema 4 renamed ``solve_time`` to ``solve_time_share`` (a batched interior-point solve's time
 is split equally among its samples; ``solve_batch`` says among how many) and added ``run``;
-schema 3 files are read with those columns filled in (``solve_batch`` 0 = unknown, ``run``
--1) and are resumed in their own layout.
+schema 3 files are read with those columns filled in (-1: unknown) and are resumed in their
+own layout.
 """
 
 from __future__ import annotations
@@ -90,11 +90,11 @@ def to_record(rows: list[dict[str, Any]], seeds: list[int], run: int,
 
 
 def normalize(samples: np.ndarray) -> np.ndarray:
-    """Rows of any schema as :data:`SAMPLE_DTYPE` (missing columns: run -1, solve_batch 0)."""
+    """Rows of any schema as :data:`SAMPLE_DTYPE` (missing columns: run and solve_batch -1)."""
     if samples.dtype == SAMPLE_DTYPE:
         return samples
     out = np.zeros(len(samples), dtype=SAMPLE_DTYPE)
-    out["run"] = -1
+    out["run"] = out["solve_batch"] = -1
     for name in samples.dtype.names:
         target = RENAMED.get(name, name)
         if target in SAMPLE_DTYPE.names:

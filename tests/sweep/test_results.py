@@ -35,7 +35,8 @@ def test_schema_3_file_is_read_and_resumed(tmp_path):
     _as_schema_3(out)
     attrs, rows, _ = read_results(out)
     assert rows.dtype == SAMPLE_DTYPE and len(rows) == 2
-    assert (rows["run"] == -1).all() and np.isfinite(rows["solve_time_share"]).all()
+    assert (rows["run"] == -1).all() and (rows["solve_batch"] == -1).all()
+    assert np.isfinite(rows["solve_time_share"]).all()
     res = run_sweep(spec, str(out))
     assert (res.already_done, res.computed) == (2, 1)
     with h5py.File(out, "r") as f:
