@@ -88,7 +88,10 @@ def allocation_cluster(run: RunSpec, security=None, worker_env=None) -> Iterator
                            protocol="tls://" if security else "tcp://",
                            scheduler_kwargs=http_options(run, host), dashboard_address=None)
     env = {**os.environ, **ONE_THREAD, **(worker_env or {}), **WORKER_LOGS}
-    main = threading.current_thread() is threading.main_thread()
+    # SIGTERM (scancel, the walltime) ends the run as interrupted, unless the run loop has its
+    # own handler in place (sweep.signals, which records "terminated")
+    main = threading.current_thread() is threading.main_thread() and \
+        signal.getsignal(signal.SIGTERM) in (signal.SIG_DFL, None)
     previous = signal.signal(signal.SIGTERM, _interrupt) if main else None
     srun = None
     try:

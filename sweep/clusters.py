@@ -238,6 +238,12 @@ def open_client(run: RunSpec, spec_json: str | None = None) -> Iterator:
             with contextlib.suppress(Exception):  # a check: it never stops a run
                 check_threads(client)
         if spec_json is not None:
-            from .worker_plugin import WarmUp
-            client.register_plugin(WarmUp(spec_json))
+            warm_up_workers(client, spec_json)
         yield client
+
+
+def warm_up_workers(client, task_json: str) -> None:
+    """Every worker compiles the problems of ``task_json`` now, and every worker that joins
+    later when it joins (:class:`sweep.worker_plugin.WarmUp`)."""
+    from .worker_plugin import WarmUp
+    client.register_plugin(WarmUp(task_json))

@@ -34,6 +34,9 @@ class SweepEntry:
     job: str
     submitted: str
     local_spec: str
+    ssh_options: list[str] = field(default_factory=list)
+    setup: list[str] = field(default_factory=list)
+    command: str = "orderless"
     state: str = "submitted"
     history: list[dict] = field(default_factory=list)
 

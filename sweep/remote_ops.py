@@ -10,8 +10,10 @@ The remote holds one folder per sweep, ``<workdir>/<sweep id>/``::
     driver.pid         the driver's process id (background start)
 
 The driver runs detached from the SSH session (a batch job, or ``nohup setsid``), so the
-laptop may sleep or lose its network.  Status and fetch never open the live HDF5 file: they
-read the driver's progress file and its consistent snapshot (:mod:`sweep.watch`).
+laptop may sleep or lose its network.  Status and fetch never copy the live HDF5 file: they
+run the remote's own ``orderless status --json`` (progress file and liveness lock,
+:mod:`sweep.status`) and ``orderless snapshot`` (a consistent copy, :mod:`sweep.live`), then
+copy that.
 """
 
 from __future__ import annotations
@@ -38,17 +40,6 @@ from .ssh import Remote, last_line, rjoin, rpath, sh_words
 RESULTS = "results.h5"
 LOG = "driver.log"
 PIDFILE = "driver.pid"
-
-
-def progress_path(results: str) -> str:
-    """The driver's progress file beside ``results`` (interim name until the reliability
-    work's progress module lands)."""
-    return results + ".progress.json"
-
-
-def snapshot_path(results: str) -> str:
-    """The driver's consistent snapshot beside ``results`` (interim name, as above)."""
-    return results + ".snapshot.h5"
 
 
 def local_version() -> str:
@@ -187,13 +178,19 @@ def submit(spec_path: Path, name: str, spec: RemoteSpec, profile_file: Path,
                             what="checking the sweep folder").stdout.strip()
         if exists:
             raise UserError(f"remote {name!r}: {folder} already exists; expected a new folder")
-        remote.upload_tree(Path(tmp), folder)
-    job = start_driver(remote, spec, folder, spec_rel, sweep_id)
+        try:
+            remote.upload_tree(Path(tmp), folder)
+        except UserError:  # a partial copy (a full disk): remove it, nothing else was made
+            remote.run(f"rm -rf {rpath(folder)}", check=False, what="removing the copy")
+            raise
+    try:
+        job = start_driver(remote, spec, folder, spec_rel, sweep_id)
+    except UserError:  # nothing ran: the folder holds only the copied inputs
+        remote.run(f"rm -rf {rpath(folder)}", check=False, what="removing the sweep folder")
+        raise
     entry = SweepEntry(sweep_id, name, spec.ssh, folder, spec_rel, RESULTS, spec.start, job,
-                       _now(), str(spec_path.resolve()))
-    entry_remote = {"options": list(spec.ssh_options), "setup": list(spec.setup),
-                    "command": spec.command}
-    entry.history.append({"remote": entry_remote})
+                       _now(), str(spec_path.resolve()), list(spec.ssh_options),
+                       list(spec.setup), spec.command)
     update(entry)
     return entry
 
@@ -204,43 +201,46 @@ def _now() -> str:
 
 def remote_of(entry: SweepEntry) -> Remote:
     """The SSH connection recorded for a registry entry."""
-    rec = next((h["remote"] for h in entry.history if "remote" in h), {})
-    return Remote(entry.remote, entry.destination, tuple(rec.get("options", ())),
-                  tuple(rec.get("setup", ())))
+    return Remote(entry.remote, entry.destination, tuple(entry.ssh_options),
+                  tuple(entry.setup))
 
 
 @dataclass(frozen=True)
 class RemoteState:
-    """What the remote says about a sweep: queue state of the driver, its progress file."""
+    """What the remote says about a sweep: the driver's queue state, ``orderless status``
+    of its results file (None before the driver wrote anything), the end of its log."""
 
     queue: str
     running: bool
-    progress: dict | None
+    status: dict | None
     log_tail: str
     folder_exists: bool = True
 
     def describe(self) -> str:
-        p = self.progress or {}
-        return f"{self.queue}; progress {p.get('state', 'unknown')}"
+        return f"{self.queue}; run {(self.status or {}).get('state', 'unknown')}"
 
 
 ACTIVE = ("PENDING", "RUNNING", "CONFIGURING", "COMPLETING", "SUSPENDED", "REQUEUED",
           "RESIZING", "SIGNALING", "STAGE_OUT")
 
 
+def _command_of(entry: SweepEntry) -> str:
+    return _command_prefix(entry.command)
+
+
 def remote_status(entry: SweepEntry) -> RemoteState:
-    """Queue state, progress and the end of the driver's log, in one SSH call."""
+    """Queue state, the remote's ``orderless status --json`` and the end of the driver's
+    log, in one SSH call (the live HDF5 file is never copied)."""
     remote = remote_of(entry)
-    folder = rpath(entry.folder)
-    results = entry.results
     if entry.start == "sbatch":
         queue = (f"scontrol show job -o {sh_words([entry.job])} 2>/dev/null | "
                  "sed -n 's/.*JobState=\\([A-Z_]*\\).*/\\1/p' | head -n 1")
     else:
         queue = (f"if kill -0 {sh_words([entry.job])} 2>/dev/null; then echo RUNNING; "
                  "else echo EXITED; fi")
-    script = (f"cd {folder} 2>/dev/null || {{ echo @@missing; exit 0; }}; echo @@queue; {queue};"
-              f" echo @@progress; cat {sh_words([progress_path(results)])} 2>/dev/null;"
+    script = (f"cd {rpath(entry.folder)} 2>/dev/null || {{ echo @@missing; exit 0; }}; "
+              f"echo @@queue; {queue}; echo @@status; "
+              f"{_command_of(entry)} status {sh_words([entry.results, '--json'])} 2>/dev/null;"
               f" echo; echo @@log; tail -n 5 {LOG} 2>/dev/null; true")
     out = remote.run(script, what="reading the sweep's state").stdout
     if out.startswith("@@missing"):
@@ -248,33 +248,33 @@ def remote_status(entry: SweepEntry) -> RemoteState:
     parts = dict(re.findall(r"@@(\w+)\n(.*?)(?=\n@@|\Z)", out, re.S))
     queue_state = parts.get("queue", "").strip() or "GONE"
     try:
-        progress = json.loads(parts.get("progress", "").strip() or "null")
+        status = json.loads(parts.get("status", "").strip() or "null")
     except ValueError:
-        progress = None  # replaced atomically, so a parse error means none was written yet
-    return RemoteState(queue_state, queue_state in ACTIVE, progress,
+        status = None  # no results or progress file yet
+    return RemoteState(queue_state, queue_state in ACTIVE, status,
                        parts.get("log", "").strip())
 
 
-def fetch(entry: SweepEntry, out: Path) -> tuple[Path, str]:
-    """Copy back a consistent results file: the snapshot while the driver runs, else the
-    results file.  It lands under a temporary name and is renamed once it reads cleanly.
-    Returns the path and which remote file was copied."""
+def fetch(entry: SweepEntry, out: Path) -> Path:
+    """Copy back a consistent results file: the remote ``orderless snapshot`` of it (the
+    committed rows, also while the driver writes), streamed through SSH.  It lands under a
+    temporary name and is renamed once every committed row reads cleanly."""
     from .storage import read_results
 
-    state = remote_status(entry)
-    if not state.folder_exists:
-        raise UserError(f"sweep {entry.id}: remote folder {entry.folder} is gone")
-    live = state.running or (state.progress or {}).get("state") == "running"
-    name = snapshot_path(entry.results) if live else entry.results
+    remote = remote_of(entry)
+    tmp = f".fetch-{secrets.token_hex(4)}.h5"
+    script = (f"cd {rpath(entry.folder)} || exit 3; {_command_of(entry)} snapshot "
+              f"{sh_words([entry.results, '-o', tmp])} >/dev/null || exit $?; "
+              f"cat {tmp}; rc=$?; rm -f {tmp}; exit $rc")
     out.parent.mkdir(parents=True, exist_ok=True)
     part = out.with_name(out.name + ".part")
     try:
-        remote_of(entry).download(rjoin(entry.folder, name), part)
+        remote.stream(script, part, what=f"copying a snapshot of {entry.results}")
         read_results(part)  # a clean read of every committed row, or a UserError
         os.replace(part, out)
     finally:
         part.unlink(missing_ok=True)
-    return out, name
+    return out
 
 
 def cancel(entry: SweepEntry) -> str:

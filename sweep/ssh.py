@@ -118,25 +118,39 @@ class Remote:
         self.run(f"mkdir -p {rpath(remote_dir)} && tar -C {rpath(remote_dir)} -xf -",
                  stdin=tar.stdout, timeout=timeout, what=f"copying files to {remote_dir}")
 
-    def download(self, remote_file: str, local: Path, *, timeout: float = 3600) -> None:
-        """Copy one remote file to ``local`` (written in full or an error is raised)."""
-        argv = self.argv(f"cat {rpath(remote_file)}")
+    def stream(self, script: str, local: Path, *, timeout: float = 3600,
+               what: str = "copying a file") -> None:
+        """Run ``script`` and write what it prints to ``local`` (all of it, or an error)."""
         with open(local, "wb") as out:
             try:
-                proc = subprocess.run(argv, stdout=out, stderr=subprocess.PIPE,
+                proc = subprocess.run(self.argv(script), stdout=out, stderr=subprocess.PIPE,
                                       timeout=timeout)
             except subprocess.TimeoutExpired:
-                raise UserError(f"remote {self.name!r}: copying {remote_file} did not finish "
-                                f"within {timeout:.0f} s") from None
+                raise UserError(f"remote {self.name!r}: {what} did not finish within "
+                                f"{timeout:.0f} s") from None
         err = proc.stderr.decode("utf-8", "replace")
         if proc.returncode == 255:
-            raise UserError(self.explain(err, f"copying {remote_file}"))
+            raise UserError(self.explain(err, what))
         if proc.returncode != 0:
-            raise UserError(f"remote {self.name!r}: cannot read {remote_file} "
-                            f"({last_line(err)})")
+            reason = last_line(err) or f"exit {proc.returncode}"
+            raise UserError(f"remote {self.name!r}: {what} failed ({reason})")
+
+    def download(self, remote_file: str, local: Path, *, timeout: float = 3600) -> None:
+        """Copy one remote file to ``local`` (written in full or an error is raised)."""
+        self.stream(f"cat {rpath(remote_file)}", local, timeout=timeout,
+                    what=f"copying {remote_file}")
+
+
+CAUSES = ("No space left on device", "Disk quota exceeded", "Read-only file system",
+          "Permission denied", "not found", "No such file or directory")
 
 
 def last_line(text: str) -> str:
-    """The last non-empty line of ``text``, stripped (for one-line errors)."""
+    """The line of ``text`` that says why (one naming a known cause, else the last one),
+    stripped, for one-line errors: tar and sh end with a generic summary line."""
     lines = [ln.strip() for ln in text.strip().splitlines() if ln.strip()]
+    for cause in CAUSES:
+        for line in lines:
+            if cause in line:
+                return line[:300]
     return lines[-1][:300] if lines else ""

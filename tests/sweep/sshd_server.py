@@ -93,6 +93,24 @@ def start_sshd(folder: Path) -> SSHServer:
     pytest.fail(f"sshd did not accept a key login: {(folder / 'sshd.log').read_text()[-500:]}")
 
 
+def restart_sshd(server: SSHServer) -> SSHServer:
+    """Stop the server and start it again on the same port with the same keys (a network
+    that drops and comes back, seen from the laptop)."""
+    stop_sshd(server)
+    proc = subprocess.Popen([SSHD, "-D", "-e", "-f", str(server.folder / "sshd_config")],
+                            stdout=subprocess.DEVNULL,
+                            stderr=open(server.folder / "sshd.log", "ab"))
+    again = SSHServer(server.port, server.folder, server.client_config, server.client_key, proc)
+    deadline = time.monotonic() + 20
+    while time.monotonic() < deadline:
+        if subprocess.run(["ssh", "-F", str(again.client_config), ALIAS, "true"],
+                          capture_output=True).returncode == 0:
+            return again
+        time.sleep(0.2)
+    stop_sshd(again)
+    pytest.fail("sshd did not come back on its port")
+
+
 def stop_sshd(server: SSHServer) -> None:
     """Stop the server by its PID (the listener; sessions it forked end with it)."""
     if server.proc.poll() is None:

@@ -70,7 +70,7 @@ def wait_until_stopped(env, sweep_id, timeout=120):
     deadline = time.monotonic() + timeout
     while time.monotonic() < deadline:
         st = json.loads(orderless(env, "status", sweep_id, "--json").stdout)
-        if not st["driver"]["running"]:
+        if not st["driver"]["running"] and (st["status"] or {}).get("state") != "running":
             return st
         time.sleep(0.5)
     raise AssertionError(f"sweep {sweep_id} still running after {timeout} s")
