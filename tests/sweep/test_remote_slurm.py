@@ -133,3 +133,55 @@ def test_submit_watch_cancel_resume_fetch_over_ssh_on_slurm(slurm, own_sshd,  # 
     runs = json.loads(attrs["runs"])
     assert len(runs) == 2 and sum(r["computed"] for r in runs) == 36
     assert slurm.jobs() == {}
+
+
+WALLTIME_SPEC = """\
+# slow samples (see-saw with several starts) so that the sweep outlasts a 1-minute job
+scenario: {dims: [2, 2, 2, 2]}
+family: {kind: ensemble, measure: valid_direction}
+compute: {samples: 60, seed: 5, robustness: [random],
+          game: {name: ocb_guess, starts: 4, max_iter: 60}}
+run: {samples_per_task: 1}
+"""
+
+
+@pytest.mark.slow
+def test_job_killed_at_its_time_limit_shows_timeout_and_resumes(slurm, own_sshd,  # noqa: F811
+                                                                tmp_path):
+    """sbatch --time=1 (SLURM's smallest limit, one minute): the job is killed at its time
+    limit (SIGTERM, then SIGKILL after KillWait); status shows TIMEOUT and the run
+    terminated, nothing stored is lost, and --resume with a longer limit completes it."""
+    laptop = tmp_path / "laptop"
+    laptop.mkdir()
+    spec = laptop / "long.yaml"
+    spec.write_text(WALLTIME_SPEC)
+    server = own_sshd["server"]
+
+    def profiles(time_limit: str) -> None:
+        setup = [f"export SLURM_CONF={slurm.env['SLURM_CONF']}", "export MPLBACKEND=Agg"]
+        (laptop / "profiles.yaml").write_text(yaml.safe_dump({"remotes": {"hpc": {
+            "ssh": ALIAS, "ssh_options": server.ssh_options, "workdir": str(tmp_path / "w"),
+            "command": ORDERLESS, "setup": setup, "start": "sbatch", "cluster": "allocation",
+            "sbatch": ["--ntasks=2", f"--time={time_limit}"]}}}))
+
+    profiles("1")
+    env = {k: v for k, v in os.environ.items() if k != "SLURM_CONF"}
+    env.update(ORDERLESS_STATE_DIR=str(laptop / "state"),
+               ORDERLESS_PROFILES=str(laptop / "profiles.yaml"), MPLBACKEND="Agg")
+    sweep_id = _orderless(env, "submit", spec, "--remote", "hpc").stdout.split()[-1]
+    st = _wait(env, sweep_id, lambda s: not s["driver"]["running"] and _state(s) != "running",
+               "the job ended", timeout=300)
+    assert st["driver"]["queue_state"] == "TIMEOUT", st
+    assert _state(st) in ("terminated", "dead"), st
+    first = int(st["status"]["stored"])
+    assert 0 < first < 60
+    profiles("00:30:00")
+    _orderless(env, "submit", "--remote", "hpc", "--resume", sweep_id)
+    st = _wait(env, sweep_id, lambda s: _state(s) == "complete" and not s["driver"]["running"],
+               "the resumed sweep complete", timeout=900)
+    final = laptop / "final.h5"
+    _orderless(env, "fetch", sweep_id, "-o", final)
+    attrs, rows, _ = read_results(final)
+    assert sorted(rows["index"].tolist()) == list(range(60))
+    runs = json.loads(attrs["runs"])
+    assert [r["computed"] for r in runs][0] == first and sum(r["computed"] for r in runs) == 60
