@@ -44,6 +44,9 @@ class SolverOptions:
     tol
         Decision threshold: a robustness is called positive only above ``tol`` plus the
         solver's own accuracy (see :mod:`workers.separability`).
+    symmetry
+        Solve a process with a continuous local-unitary symmetry in the commutant of its
+        symmetry group (:mod:`workers.symmetry`; exact, and found and verified per process).
     """
 
     solver: str = "AUTO"
@@ -53,6 +56,7 @@ class SolverOptions:
     time_limit: float | None = None
     fallback: bool = True
     tol: float = 1e-6
+    symmetry: bool = True
 
     def __post_init__(self) -> None:
         if self.solver.upper() not in SOLVERS:
