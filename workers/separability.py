@@ -134,7 +134,7 @@ def _solve_all(scenario: Scenario, kind: str, method: str, options: SolverOption
             res = get_problem(scenario, kind, method, options).solve_many(
                 batch, keep_certificate=keep, warm_start=warm_start)
         else:
-            res = prob.solve_many(batch, keep_certificate=keep)
+            res = prob.solve_many(batch, keep_certificate=keep, warm_start=warm_start)
         out.update(zip(idx, res))
     return out
 

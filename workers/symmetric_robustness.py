@@ -74,13 +74,23 @@ class SymmetricProblem:
                      f"{sym.residual:.1e}), PSD blocks {max(max(s) for s in sizes)} at most, "
                      f"{self.problem.A.shape[1]} variables")
 
-    def solve_many(self, Ws, keep_certificate: bool = False) -> list[RobustnessResult]:
+    def solve_many(self, Ws, keep_certificate: bool = False, warm_start: bool = False
+                   ) -> list[RobustnessResult]:
+        """Solve every W of ``Ws`` (one batched call when the back-end batches);
+        ``warm_start`` chains warm-started SCS solves along ``Ws`` as
+        :meth:`workers.robustness.RobustnessProblem.solve_many` does."""
         ws = [self._coefficients(W) for W in Ws]
         if not ws:
             return []
         bs = np.array([self.problem.b(self.basis.coordinates(w)) for w in ws])
         many = getattr(self.backend, "solve_many", None)
-        raws = many(bs) if many is not None else [self.backend.solve(b) for b in bs]
+        if warm_start and self.backend.warm_startable:
+            raws, prev = [], None
+            for b in bs:
+                prev = self.backend.solve(b, prev)
+                raws.append(prev)
+        else:
+            raws = many(bs) if many is not None else [self.backend.solve(b) for b in bs]
         out = []
         for W, w, raw in zip(Ws, ws, raws):
             res = self._result(raw, w, keep_certificate)
