@@ -119,9 +119,11 @@ def decide(b: Bounds, tol: float) -> tuple[str, float, str]:
 
 
 def _solve_all(scenario: Scenario, kind: str, method: str, options: SolverOptions, Ws,
-               todo: list[int], keep: bool, warm_start: bool) -> dict[int, RobustnessResult]:
+               todo: list[int], keep: bool, warm_start: bool,
+               start: dict[int, RobustnessResult] | None = None) -> dict[int, RobustnessResult]:
     """Solve ``Ws[i]`` for i in todo: processes with a local symmetry in the commutant of
-    their symmetry group (one compiled problem per symmetry algebra), the rest as one batch."""
+    their symmetry group (one compiled problem per symmetry algebra), the rest as one batch.
+    ``start`` (the necessary bound's results) starts a matrix-free sufficient solve."""
     groups: dict = {}
     for i in todo:
         sym = find_local_symmetry(scenario.subsystem_dims, Ws[i]) if options.symmetry else None
@@ -132,7 +134,8 @@ def _solve_all(scenario: Scenario, kind: str, method: str, options: SolverOption
         batch = [Ws[i] for i in idx]
         if prob is None:
             res = get_problem(scenario, kind, method, options).solve_many(
-                batch, keep_certificate=keep, warm_start=warm_start)
+                batch, keep_certificate=keep, warm_start=warm_start,
+                start=[start[i] for i in idx] if start else None)
         else:
             res = prob.solve_many(batch, keep_certificate=keep, warm_start=warm_start)
         out.update(zip(idx, res))
@@ -190,9 +193,12 @@ def analyse_many(
     known = [None if force_solve else try_comb_shortcut(scenario, W, tuple(quantities), methods)
              for W in Ws]
     todo = [i for i, k in enumerate(known) if k is None]
-    solved = {(kind, m): _solve_all(scenario, kind, m, options, Ws, todo, keep_certificate,
-                                    warm_start)
-              for kind in quantities for m in methods} if todo else {}
+    solved: dict = {}
+    for kind in quantities if todo else ():
+        for m in methods:  # the sufficient bound starts where the necessary one ended
+            prev = solved.get((kind, "necessary")) if m == "sufficient" else None
+            solved[(kind, m)] = _solve_all(scenario, kind, m, options, Ws, todo,
+                                           keep_certificate, warm_start, prev)
     out = []
     for i in range(len(Ws)):
         bounds = {}

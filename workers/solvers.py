@@ -31,7 +31,7 @@ class SolverOptions:
         ``"AUTO"`` (default: the built-in batched interior point ``"IPM"`` when the problem
         is small enough for it, see :func:`workers.solver_ipm.fits`, else ``"SCS"``),
         ``"SCS"`` (first-order), ``"CLARABEL"`` (interior point, real embedding), ``"IPM"``,
-        or ``"ADMM"`` (matrix-free, random robustness only; ``AUTO`` takes it when the conic
+        or ``"ADMM"`` (matrix-free splitting, many processes per call; ``AUTO`` takes it when the conic
         matrix would not fit in memory, see :mod:`workers.solver_admm`).
     eps_abs, eps_rel
         SCS's absolute/relative tolerances; Clarabel's ``tol_gap_abs/rel`` and ``tol_feas``.
