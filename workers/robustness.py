@@ -18,7 +18,7 @@ from .cone_vectors import cone_to_matrix
 from .conic import ConicProblem, compile_problem
 from .layout import build_layout
 from .leaf_spaces import embed_identity
-from .solver_admm import AdmmBackend, needs_admm
+from .solver_admm import AdmmBackend, fits_in_memory, needs_admm
 from .scenario import Scenario
 from .solvers import FALLBACK, RawSolution, SolverOptions, get_backend, resolve_solver
 from .validity import check_shape
@@ -117,8 +117,9 @@ class RobustnessProblem:
         w = self.coefficients(W)
         if self.problem is None:  # a matrix-free warm start: another structure's solve of W
             start = self.backend.start_from([warm_start] if warm_start is not None else None)
-            return self._admm_result(self.backend.solve_many_w(w[None], start)[0], w,
-                                     keep_certificate)
+            res = self._admm_result(self.backend.solve_many_w(w[None], start)[0], w,
+                                    keep_certificate)
+            return self._admm_fallback(W, res, keep_certificate)
         warm = warm_start.raw if warm_start is not None and self.backend.warm_startable else None
         raw = self.backend.solve(self.problem.b(w), warm)
         return self._finish(W, raw, w, keep_certificate)
@@ -140,7 +141,8 @@ class RobustnessProblem:
             if not ws:
                 return []
             sols = self.backend.solve_many_w(np.array(ws), self.backend.start_from(start))
-            return [self._admm_result(sol, w, keep_certificate) for sol, w in zip(sols, ws)]
+            return [self._admm_fallback(W, self._admm_result(sol, w, keep_certificate),
+                                        keep_certificate) for W, sol, w in zip(Ws, sols, ws)]
         if warm_start and self.backend.warm_startable:
             out, prev = [], None
             for W in Ws:
@@ -189,6 +191,19 @@ class RobustnessProblem:
             raw.gap, raw.solve_time, raw.setup_time, wval, witness, leaves, duals, omega,
             raw.message, "", raw,
         )
+
+    def _admm_fallback(self, W, result: RobustnessResult, keep: bool) -> RobustnessResult:
+        """A failed or capped matrix-free solve is redone by SCS when its matrix fits."""
+        if (result.status not in RETRY or not self.options.fallback
+                or not fits_in_memory(self.layout)):
+            return result
+        alt = get_problem(self.scenario, self.kind, self.method,
+                          replace(self.options, solver="SCS", fallback=False,
+                                  max_iters=SolverOptions().max_iters))
+        second = alt.solve(W, keep_certificate=keep)
+        if second.status in FAILED:
+            return result
+        return replace(second, fallback_from=f"ADMM:{result.status}")
 
     def _admm_result(self, sol, w: np.ndarray, keep: bool) -> RobustnessResult:
         """The result of a matrix-free solve (:mod:`workers.solver_admm`)."""

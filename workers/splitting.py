@@ -28,7 +28,6 @@ import numpy as np
 from .splitting_data import SplitProblem
 
 CHECK_EVERY = 10
-TRACE = False
 REBALANCE_EVERY = 50
 
 
@@ -224,9 +223,6 @@ def solve_batch(prob: SplitProblem, w: np.ndarray, eps_abs: float = 1e-6,
             done = ((r_p <= eps_abs + eps_rel * ny) & (r_d <= eps_abs + eps_rel * nz)
                     & (gap <= eps_abs + eps_rel * np.maximum(np.abs(obj), np.abs(dobj))))
             final = done | (it == max_iters) | out_of_time
-            if TRACE:
-                print(it, " ".join(f"{a:.1e}/{b:.1e}/{c:.1e}/{d:.2g}" for a, b, c, d in zip(
-                    r_p / np.maximum(ny, 1e-12), r_d / np.maximum(nz, 1e-12), gap, rho)))
             idx = active[final]
             for key, val in zip(("pobj", "dobj", "res_pri", "res_dual", "gap"),
                                 (obj, dobj, r_p, r_d, gap)):

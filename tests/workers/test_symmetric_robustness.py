@@ -33,6 +33,7 @@ def test_ocb_values_and_smaller_blocks():
         assert max(prob.problem.cone_dims) == 2 and "symmetry-reduced" in r.message
 
 
+@pytest.mark.slow
 def test_reduced_equals_full_on_lugano():
     """The Lugano process (Baumeler & Wolf 2016) is diagonal: its reduced leaves are
     diagonal (an LP).  Both robustness measures equal those of the full SDP."""
@@ -47,6 +48,7 @@ def test_reduced_equals_full_on_lugano():
     assert a.value > 0.4
 
 
+@pytest.mark.slow
 def test_switch_values():
     """Quantum switch with a qubit target (Chiribella et al. 2013; process matrix of Araujo
     et al., NJP 17, 102001 (2015)): R_r = 5.91037 and R_g = 0.6, reference values computed
