@@ -25,7 +25,7 @@ from .scenario import Scenario
 from .shortcuts import try_comb_shortcut
 from .solvers import SolverOptions
 from .symmetric_robustness import get_symmetric_problem
-from .symmetry import find_local_symmetry
+from .symmetry import find_local_symmetry, may_be_symmetric
 
 VERDICTS = ("separable", "nonseparable", "undecided")
 QUANTITIES = ("random", "generalized")
@@ -118,15 +118,26 @@ def decide(b: Bounds, tol: float) -> tuple[str, float, str]:
         f"+/- solver accuracy")
 
 
+def _symmetries(scenario: Scenario, Ws, todo: list[int], options: SolverOptions) -> dict:
+    """The local symmetry algebra of each process to solve (None where it has none)."""
+    if not options.symmetry or not todo:
+        return {}
+    dims = scenario.subsystem_dims
+    maybe = may_be_symmetric(dims, [Ws[i] for i in todo])
+    return {i: find_local_symmetry(dims, Ws[i]) for i, m in zip(todo, maybe) if m}
+
+
 def _solve_all(scenario: Scenario, kind: str, method: str, options: SolverOptions, Ws,
                todo: list[int], keep: bool, warm_start: bool,
-               start: dict[int, RobustnessResult] | None = None) -> dict[int, RobustnessResult]:
-    """Solve ``Ws[i]`` for i in todo: processes with a local symmetry in the commutant of
-    their symmetry group (one compiled problem per symmetry algebra), the rest as one batch.
-    ``start`` (the necessary bound's results) starts a matrix-free sufficient solve."""
+               start: dict[int, RobustnessResult] | None = None,
+               syms: dict | None = None) -> dict[int, RobustnessResult]:
+    """Solve ``Ws[i]`` for i in todo: processes with a local symmetry (``syms``) in the
+    commutant of their symmetry group (one compiled problem per symmetry algebra), the rest
+    as one batch.  ``start`` (the necessary bound's results) starts a matrix-free
+    sufficient solve."""
     groups: dict = {}
     for i in todo:
-        sym = find_local_symmetry(scenario.subsystem_dims, Ws[i]) if options.symmetry else None
+        sym = (syms or {}).get(i)
         prob = get_symmetric_problem(scenario, kind, method, options, sym) if sym else None
         groups.setdefault(prob, []).append(i)
     out: dict[int, RobustnessResult] = {}
@@ -194,11 +205,12 @@ def analyse_many(
              for W in Ws]
     todo = [i for i, k in enumerate(known) if k is None]
     solved: dict = {}
+    syms = _symmetries(scenario, Ws, todo, options)
     for kind in quantities if todo else ():
         for m in methods:  # the sufficient bound starts where the necessary one ended
             prev = solved.get((kind, "necessary")) if m == "sufficient" else None
             solved[(kind, m)] = _solve_all(scenario, kind, m, options, Ws, todo,
-                                           keep_certificate, warm_start, prev)
+                                           keep_certificate, warm_start, prev, syms)
     out = []
     for i in range(len(Ws)):
         bounds = {}

@@ -111,6 +111,31 @@ def _commutators(W: np.ndarray, dims: tuple[int, ...]) -> np.ndarray:
     return np.concatenate([C.real, C.imag], axis=1)
 
 
+def may_be_symmetric(dims: Sequence[int], Ws, tol: float = TOLERANCE) -> np.ndarray:
+    """A cheap screen over a stack of processes: False where no local generator can commute
+    with W (the smallest eigenvalue of the commutators' Gram matrix exceeds the rounding
+    floor), True where :func:`find_local_symmetry` has to look.  One tensor contraction per
+    subsystem for the whole stack; each sample's Gram matrix is its own product."""
+    dims = tuple(int(d) for d in dims)
+    Ws = np.asarray(Ws, dtype=complex)
+    if not len(Ws):
+        return np.zeros(0, dtype=bool)
+    B, D = Ws.shape[0], Ws.shape[1]
+    T = Ws.reshape((B,) + dims + (D,))
+    cols = []
+    for s, g in _local_generators(dims)[0]:
+        L = np.tensordot(g, T, axes=([2], [1 + s]))  # (k, d_s, B, other subsystems..., D)
+        L = np.moveaxis(np.moveaxis(L, 2, 0), 2, 2 + s).reshape(B, len(g), D, D)
+        cols.append((L - np.swapaxes(L, 2, 3).conj()).reshape(B, len(g), -1))
+    if not cols:
+        return np.zeros(B, dtype=bool)
+    C = np.concatenate(cols, axis=1)
+    C = np.concatenate([C.real, C.imag], axis=2)
+    lam = np.linalg.eigvalsh(np.matmul(C, np.swapaxes(C, 1, 2)))
+    norm2 = np.sum(np.abs(Ws.reshape(B, -1)) ** 2, axis=1)
+    return lam[:, 0] <= np.maximum(1e-12 * lam[:, -1], tol ** 2 * norm2)
+
+
 def find_local_symmetry(dims: Sequence[int], W: np.ndarray,
                         tol: float = TOLERANCE) -> LocalSymmetry | None:
     """The local symmetry algebra of the Hermitian operator W, or None if it has none.

@@ -65,3 +65,16 @@ def test_key_names_the_algebra_not_the_process():
     a = find_local_symmetry(dims, p.matrix)
     b = find_local_symmetry(dims, white_noise_mixture(p.scenario, p.matrix, 0.7))
     assert a.key == b.key and a == b and hash(a) == hash(b)
+
+
+def test_screen_agrees_with_the_full_search(rng):
+    """may_be_symmetric is False exactly where find_local_symmetry finds nothing (on a
+    stack mixing random processes and symmetric named ones)."""
+    from workers.symmetry import may_be_symmetric
+
+    s = Scenario.from_dims([2, 2, 2, 2])
+    Ws = [random_valid_process(s, rng), ocb_process().matrix, random_valid_process(s, rng),
+          white_noise_mixture(s, ocb_process().matrix, 0.5)]
+    screen = may_be_symmetric(s.subsystem_dims, Ws)
+    full = [find_local_symmetry(s.subsystem_dims, W) is not None for W in Ws]
+    assert list(screen) == full == [False, True, False, True]
