@@ -82,7 +82,7 @@ def test_tripartite_qubit_decomposition_meets_textbook_constraints():
     prob = get_problem(s, "random", "exact", SolverOptions())
     r = prob.solve(W, keep_certificate=True)
     assert r.upper_bound == pytest.approx(r.lower_bound, abs=1e-6)
-    leaves = dict(zip(prob.problem.structure.leaves, r.leaves))
+    leaves = dict(zip(prob.layout.structure.leaves, r.leaves))
     parts = {(o[0], o[1]): cp.Parameter((64, 64), complex=True, value=L)
              for o, L in leaves.items()}
     worst = max(float(np.max(np.abs(c.expr.value))) for c in _tripartite_constraints(parts, dims))
