@@ -144,9 +144,10 @@ class ComputeSpec(Strict):
         "auto", description="separability characterisation (auto: exact N<=3, bounds N>=4)")
     solver: Literal["AUTO", "IPM", "SCS", "CLARABEL", "ADMM"] = Field(
         "AUTO", description="SDP back-end: AUTO (the built-in batched interior point IPM for "
-        "small problems, e.g. bipartite qubits; the matrix-free ADMM when the conic matrix "
-        "would not fit in memory, e.g. four qubit parties; SCS otherwise), IPM, SCS, "
-        "CLARABEL or ADMM (random robustness only)")
+        "small problems, e.g. bipartite qubits; the built-in matrix-free splitting ADMM for "
+        "the random robustness with PSD blocks of 32x32 or more, e.g. three qubit parties, "
+        "and whenever the conic matrix would not fit in memory, e.g. four qubit parties; "
+        "SCS otherwise), IPM, SCS, CLARABEL or ADMM")
     eps: float = Field(1e-6, gt=0, description="solver eps_abs = eps_rel")
     max_iters: int = Field(200_000, ge=1, description="solver iteration cap")
     tol: float = Field(1e-6, gt=0, description="decision threshold on the robustness")

@@ -50,8 +50,10 @@ def _fresh_venv_python(cache_dir: Path) -> Path:
     return python
 
 
-def test_every_module_imports_without_the_test_extra(request):
-    python = _fresh_venv_python(Path(request.config.cache.mkdir("orderless-base-install")))
+def test_every_module_imports_without_the_test_extra(request, tmp_path_factory):
+    cache = getattr(request.config, "cache", None)  # None under -p no:cacheprovider
+    folder = cache.mkdir("orderless-base-install") if cache else tmp_path_factory.mktemp("v")
+    python = _fresh_venv_python(Path(folder))
     env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "PYTHONHOME")}
     run = subprocess.run([str(python), "-c", IMPORT_ALL.format(test_only=TEST_ONLY)],
                          capture_output=True, text=True, cwd="/", env=env)

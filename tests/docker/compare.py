@@ -8,8 +8,8 @@ import numpy as np
 
 from sweep.storage import read_results
 
-# Per-run facts rather than results: wall time and which worker solved a sample.
-NOT_COMPARED = ("solve_time", "worker")
+# Per-run facts rather than results: wall time, which run and which worker solved a sample.
+NOT_COMPARED = ("solve_time", "solve_time_share", "run", "worker")
 
 
 def sorted_samples(path) -> tuple[dict, np.ndarray]:

@@ -12,12 +12,13 @@ import yaml
 
 from sweep.clusters import open_client
 from sweep.errors import UserError
+from sweep.progress import read_progress
 from sweep.spec_run import RunSpec
 from sweep.storage import read_results
 from tests.sweep.slurm import slurm  # noqa: F401 - the module's SLURM fixture
 
 pytestmark = pytest.mark.cluster
-# 60 two-qubit samples, 2 per task, with the progress bar on (it goes to the job's log)
+# 60 two-qubit samples, 2 per task
 SPEC = {"scenario": {"dims": [2, 2, 2, 2]},
         "family": {"kind": "ensemble", "measure": "valid_direction"},
         "grid": [{"param": "u", "values": [0.9, 1.0]}],
@@ -32,22 +33,22 @@ def _submit(slurm, folder: Path, env) -> str:  # noqa: F811
     return re.search(r"Submitted batch job (\d+)", out).group(1)
 
 
-def _progress(log: Path) -> int:
-    """Samples done according to the progress bar in the job's log."""
-    done = re.findall(r"\] (\d+)/60", log.read_text()) if log.exists() else []
-    return int(done[-1]) if done else 0
+def _progress(out: Path) -> int:
+    """Samples this run has stored, from the driver's progress file (sweep.progress)."""
+    return int((read_progress(out) or {}).get("computed", 0))
 
 
 def test_cancelled_allocation_resumes_computing_only_what_is_missing(slurm, tmp_path):  # noqa: F811
     """sbatch -n 2 --wrap "orderless run SPEC -o OUT.h5 --cluster allocation": scancel once
     results are stored, then the same line again: it stores only the missing samples, each
-    sample once; the first run is recorded as interrupted (SIGTERM closed the file)."""
+    sample once; the first run is recorded as terminated (SIGTERM, handled by the run loop,
+    closed the file)."""
     (tmp_path / "spec.yaml").write_text(yaml.safe_dump(SPEC))
     env = {**slurm.env, "PATH": f"{Path(sys.executable).parent}:{slurm.env['PATH']}"}
     first = _submit(slurm, tmp_path, env)
     log = tmp_path / f"job-{first}.log"
     deadline = time.monotonic() + 240
-    while _progress(log) < 8:
+    while _progress(tmp_path / "out.h5") < 8:
         assert first in slurm.jobs(), log.read_text() if log.exists() else "no log"
         assert time.monotonic() < deadline, "no progress within 240 s"
         time.sleep(0.2)
@@ -56,7 +57,7 @@ def test_cancelled_allocation_resumes_computing_only_what_is_missing(slurm, tmp_
     attrs, s, _ = read_results(tmp_path / "out.h5")
     stored = len(s)
     assert 8 <= stored < 60
-    assert json.loads(attrs["runs"])[-1]["state"] == "interrupted"
+    assert json.loads(attrs["runs"])[-1]["state"] == "terminated"
 
     second = _submit(slurm, tmp_path, env)
     assert slurm.wait_job(second, timeout=300) == "COMPLETED"
