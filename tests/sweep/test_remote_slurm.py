@@ -139,7 +139,7 @@ WALLTIME_SPEC = """\
 # slow samples (see-saw with several starts) so that the sweep outlasts a 1-minute job
 scenario: {dims: [2, 2, 2, 2]}
 family: {kind: ensemble, measure: valid_direction}
-compute: {samples: 60, seed: 5, robustness: [random],
+compute: {samples: 120, seed: 5, robustness: [random],
           game: {name: ocb_guess, starts: 4, max_iter: 60}}
 run: {samples_per_task: 1}
 """
@@ -174,7 +174,7 @@ def test_job_killed_at_its_time_limit_shows_timeout_and_resumes(slurm, own_sshd,
     assert st["driver"]["queue_state"] == "TIMEOUT", st
     assert _state(st) in ("terminated", "dead"), st
     first = int(st["status"]["stored"])
-    assert 0 < first < 60
+    assert 0 < first < 120
     profiles("00:30:00")
     _orderless(env, "submit", "--remote", "hpc", "--resume", sweep_id)
     st = _wait(env, sweep_id, lambda s: _state(s) == "complete" and not s["driver"]["running"],
@@ -182,6 +182,6 @@ def test_job_killed_at_its_time_limit_shows_timeout_and_resumes(slurm, own_sshd,
     final = laptop / "final.h5"
     _orderless(env, "fetch", sweep_id, "-o", final)
     attrs, rows, _ = read_results(final)
-    assert sorted(rows["index"].tolist()) == list(range(60))
+    assert sorted(rows["index"].tolist()) == list(range(120))
     runs = json.loads(attrs["runs"])
-    assert [r["computed"] for r in runs][0] == first and sum(r["computed"] for r in runs) == 60
+    assert [r["computed"] for r in runs][0] == first and sum(r["computed"] for r in runs) == 120
