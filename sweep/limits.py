@@ -34,6 +34,7 @@ from workers.basis import pattern_sizes
 from workers.layout import build_layout
 from workers.scenario import Scenario
 from workers.separability import methods_for
+from workers.solver_admm import AUTO_BLOCK as SPLITTING_BLOCK
 from workers.solver_admm import AUTO_NNZ
 from workers.solver_ipm import AUTO_BLOCK, AUTO_VARIABLES
 from workers.solvers import clarabel_bytes
@@ -143,8 +144,8 @@ def _backend(solver: str, kind: str, blocks: tuple[int, ...], variables: int,
              nnz: int) -> str:
     if solver != "AUTO":
         return solver
-    if kind == "random" and nnz > AUTO_NNZ:
-        return "ADMM"
+    if kind == "random" and (nnz > AUTO_NNZ or max(blocks) >= SPLITTING_BLOCK):
+        return "ADMM"  # as workers.solver_admm.needs_admm decides
     if variables <= AUTO_VARIABLES and max(blocks) <= AUTO_BLOCK:
         return "IPM"
     return "SCS"
