@@ -122,13 +122,86 @@ def tripartite_small(n: int) -> Row:
                         W, dims, "SCS", 1e-8).value)
 
 
-def tripartite_qubits(n: int, eps: float) -> Row:
+def tripartite_qubits(n: int, eps: float, baseline: bool = True) -> Row:
+    """Three qubit parties (64 x 64, dynamical order) against the Pauli-coefficient cvxpy
+    formulation of :mod:`bench.pauli_baseline` (SCS at eps 1e-7, a fresh problem per
+    process).  "max diff" compares the signed optima (both sides leave the noise weight
+    free), so separable samples are compared by how far inside the set they lie."""
+    from bench.pauli_baseline import pauli_random_robustness
+    from workers.robustness import get_problem
     from workers.scenario import Scenario
+    from workers.solvers import SolverOptions
 
-    row = _compare(f"tripartite-qubits eps={eps:g}", Scenario.from_dims([2] * 6), "random",
-                   "exact", n, eps, None)
-    return Row(row.target, row.instances, row.fast_median, row.base_median, row.max_diff,
-               row.peak_mib, row.note + "; baseline not run (measured 363 s setup, 9.1 GB)")
+    s = Scenario.from_dims([2] * 6)
+    rng = np.random.default_rng(4)
+    Ws = [random_valid(s, rng, 0.9) for _ in range(n)]
+    opts = SolverOptions(eps_abs=eps, eps_rel=eps)
+    t_setup, prob = _timed(lambda: get_problem(s, "random", "exact", opts))
+    fast = [_timed(lambda W=W: prob.solve(W)) for W in Ws]
+    t_fast = float(np.median([t for t, _ in fast]))
+    how = "median of single solves"
+    if hasattr(prob.backend, "solve_many") or hasattr(prob.backend, "solve_many_w"):
+        t_batch, _ = _timed(lambda: prob.solve_many(Ws))
+        how = f"batch of {n} {t_batch / n:.3g} s/sample; single solves median {t_fast:.3g} s"
+    base = [_timed(lambda W=W: pauli_random_robustness(W, (2,) * 6, 1e-7)) for W in Ws] \
+        if baseline else []
+    diff = max((abs(f[1].upper_bound - b[1].value) for f, b in zip(fast, base)),
+               default=float("nan"))
+    iters = [r.iterations for _, r in fast]
+    note = (f"{prob.options.solver}, {how}; setup {t_setup:.2f} s, eps {eps:g}, exact; "
+            f"iterations {min(iters)}-{max(iters)}")
+    if base:
+        note += (f"; baseline: Pauli-coefficient cvxpy + SCS eps 1e-7, setup "
+                 f"{np.median([b[1].setup_time for b in base]):.1f} s + solve "
+                 f"{np.median([b[1].solve_time for b in base]):.1f} s")
+    return Row(f"tripartite-qubits eps={eps:g}", n, t_fast,
+               float(np.median([b[0] for b in base])) if base else float("nan"), diff,
+               _peak_mib(), note)
+
+
+def switch_check(repeats: int = 1) -> Row:
+    """``orderless check`` on the quantum switch with a qubit target (both robustness
+    measures and the certificate), as a separate process pinned to one core; its answer
+    check is R_r = 5.91037 and R_g = 0.6 (reference values computed outside this project
+    with an independent formulation).  "peak MiB" is the check process's own peak."""
+    import json
+    import resource
+    import subprocess
+    import tempfile
+
+    from workers.families import quantum_switch
+
+    with tempfile.TemporaryDirectory() as tmp:
+        path = f"{tmp}/switch.npy"
+        np.save(path, quantum_switch().matrix)
+        pin = ["taskset", "-c", "0"] if _has_taskset() else []
+        cmd = pin + [sys.executable, "-m", "sweep.cli", "check", path, "--dims", "2,2,2,2",
+                     "--past", "4", "--future", "4", "--json"]
+        env = {**os.environ, **{v: "1" for v in THREAD_VARS}}
+        walls, out = [], {}
+        before = resource.getrusage(resource.RUSAGE_CHILDREN)
+        for _ in range(repeats):
+            t0 = time.perf_counter()
+            done = subprocess.run(cmd, capture_output=True, text=True, env=env, check=True)
+            walls.append(time.perf_counter() - t0)
+            out = json.loads(done.stdout)
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime + after.ru_stime - before.ru_utime - before.ru_stime) / repeats
+    diff = max(abs(out["random_robustness"] - 5.91037), abs(out["generalized_robustness"] - 0.6))
+    solves = "; ".join(f"{x['kind']} {x['solver']} {x['iterations']} it {x['solve_time']:.2f} s"
+                       for x in out["solves"])
+    return Row("quantum switch check", repeats, float(np.median(walls)), float("nan"), diff,
+               after.ru_maxrss / 1024.0,
+               f"one core{' (taskset -c 0)' if pin else ''}, wall median of {repeats}, CPU "
+               f"{cpu:.1f} s; R_r {out['random_robustness']:.6f}, R_g "
+               f"{out['generalized_robustness']:.6f}, verdict {out['verdict']} (certified "
+               f"{out['certified']}); {solves}; max diff = against 5.91037 / 0.6")
+
+
+def _has_taskset() -> bool:
+    import shutil
+
+    return shutil.which("taskset") is not None
 
 
 def four_party(dims: tuple[int, ...], n: int, eps: float = 1e-8) -> Row:
@@ -142,21 +215,28 @@ def four_party(dims: tuple[int, ...], n: int, eps: float = 1e-8) -> Row:
     Ws = [random_valid(s, rng, 0.9) for _ in range(n)]
     opts = SolverOptions(eps_abs=eps, eps_rel=eps, time_limit=300.0)
     probs = [get_problem(s, "random", m, opts) for m in ("necessary", "sufficient")]
+    chain = all(p.options.solver == "ADMM" for p in probs)  # sufficient from necessary
     times, gaps = [], []
     for W in Ws:
-        t, (lo, up) = _timed(lambda W=W: tuple(p.solve(W).value for p in probs))
+        def both(W=W):
+            lo = probs[0].solve(W)
+            return lo.value, probs[1].solve(W, warm_start=lo if chain else None).value
+        t, (lo, up) = _timed(both)
         times.append(t)
         gaps.append(up - lo)
-    blocks = [p.problem.n_blocks for p in probs]
+    blocks = [p.layout.n_blocks for p in probs]
+    solvers = "/".join(p.options.solver for p in probs)
     return Row(f"four-party {','.join(map(str, dims))}", n, float(np.median(times)),
                float("nan"), float(max(gaps)), _peak_mib(),
-               f"eps {eps:g}, necessary+sufficient, blocks {blocks} (of 24); "
+               f"{solvers}, eps {eps:g}, necessary+sufficient, blocks {blocks} (of 24), "
+               f"largest {max(max(p.layout.block_sizes) for p in probs)}; "
                "max diff = largest sufficient-necessary gap")
 
 
 def four_qubits(n: int, eps: float = 1e-5) -> Row:
     """Four qubit parties (256 x 256): necessary and sufficient bounds per sample with the
-    matrix-free ADMM (AUTO's choice here); the note gives the conic matrix SCS would need."""
+    matrix-free splitting solver (AUTO's choice here), the sufficient solve started from the
+    necessary one's final iterate; the note gives the conic matrix SCS would need."""
     from workers.layout import build_layout
     from workers.robustness import get_problem
     from workers.scenario import Scenario
@@ -167,18 +247,22 @@ def four_qubits(n: int, eps: float = 1e-5) -> Row:
     rng = np.random.default_rng(5)
     Ws = [random_valid(s, rng, 0.9) for _ in range(n)]
     opts = SolverOptions(eps_abs=eps, eps_rel=eps)
-    probs = [get_problem(s, "random", m, opts) for m in ("necessary", "sufficient")]
+    nec, suf = (get_problem(s, "random", m, opts) for m in ("necessary", "sufficient"))
     times, gaps, notes = [], [], []
     for W in Ws:
-        t, (lo, up) = _timed(lambda W=W: tuple(p.solve(W) for p in probs))
+        def both(W=W):
+            lo = nec.solve(W)
+            return lo, suf.solve(W, warm_start=lo)
+        t, (lo, up) = _timed(both)
         times.append(t)
         gaps.append(up.upper_bound - lo.upper_bound)
         notes.append(f"R in [{lo.upper_bound:.5f}, {up.upper_bound:.5f}], {lo.iterations}+"
-                     f"{up.iterations} iterations, {lo.status}/{up.status}")
+                     f"{up.iterations} iterations ({lo.solve_time:.0f} s + "
+                     f"{up.solve_time:.0f} s), {lo.status}/{up.status}")
     return Row("four-party qubits", n, float(np.median(times)), float("nan"),
                float(max(gaps)), _peak_mib(),
-               f"{probs[0].options.solver}, eps {eps:g}, blocks {probs[0].layout.block_sizes[0]}"
-               f" x {probs[0].layout.n_blocks}; " + "; ".join(notes) + f"; the conic matrix "
+               f"{nec.options.solver}, eps {eps:g}, blocks {nec.layout.block_sizes[0]}"
+               f" x {nec.layout.n_blocks}; " + "; ".join(notes) + f"; the conic matrix "
                f"would hold ~{nnz / 1e6:.0f}M nonzeros (~{nnz * 12 / 2**30:.1f} GiB before SCS "
                "copies and factorises it)")
 
@@ -287,8 +371,9 @@ TARGETS: dict[str, Callable[[bool], Row]] = {
     "bipartite-random": lambda q: bipartite("random", 16 if q else 32),
     "bipartite-generalized": lambda q: bipartite("generalized", 5 if q else 15),
     "tripartite-small": lambda q: tripartite_small(3 if q else 6),
-    "tripartite-qubits": lambda q: tripartite_qubits(3 if q else 7, 1e-8),
-    "tripartite-qubits-1e-6": lambda q: tripartite_qubits(3 if q else 7, 1e-6),
+    "tripartite-qubits": lambda q: tripartite_qubits(3 if q else 7, 1e-8, baseline=False),
+    "tripartite-qubits-1e-6": lambda q: tripartite_qubits(2 if q else 4, 1e-6),
+    "switch-check": lambda q: switch_check(1 if q else 3),
     "four-party-tiny": lambda q: four_party((2, 1) * 4, 3 if q else 10),
     "four-party-mixed": lambda q: four_party((2, 2, 2, 1, 2, 1, 2, 1), 2 if q else 3, 1e-6),
     "four-party-qubits": lambda q: four_qubits(1),

@@ -9,10 +9,11 @@ import math
 import numpy as np
 
 from workers.scenario import Scenario
-from workers.certified import SECOND_PASS_MODES, analyse_and_certify
+from workers.certified import SECOND_PASS_MODES
 from workers.solvers import SolverOptions
 from workers.validity import check_validity, hermitian_part
 
+from .check_steps import analyse_and_certify_steps, announcer
 from .errors import UserError
 from .operator_files import parse_dims, read_operator
 
@@ -55,6 +56,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--seesaw-starts", type=int, default=5)
     p.add_argument("--seed", type=int, default=0, help="seed of the see-saw starts")
     p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--quiet", action="store_true", help="no step lines on stderr (shown on a "
+                   "terminal, or when the check is estimated to take over 10 s)")
     p.set_defaults(func=run)
 
 
@@ -97,15 +100,16 @@ def _finite(x: float | None) -> float | None:
 
 def check_report(scenario: Scenario, W: np.ndarray, options: SolverOptions,
                  quantities: tuple[str, ...], method: str, second_pass: str = "auto",
-                 force_solve: bool = False) -> dict:
+                 force_solve: bool = False, say=lambda text: None) -> dict:
     """Everything ``check`` prints, as a JSON-ready dict (raises UserError if W is invalid).
 
     The verdict is the certified one: a solver verdict whose certificate does not verify
-    (after the second pass) is reported as ``undecided``.
+    (after the second pass) is reported as ``undecided``.  ``say`` receives a line as each
+    step starts (:mod:`sweep.check_steps`).
     """
     W = _validated(scenario, W)
-    res, cv = analyse_and_certify(scenario, W, quantities, method, options, second_pass,
-                                  force_solve)
+    res, cv = analyse_and_certify_steps(scenario, W, quantities, method, options, second_pass,
+                                        force_solve, say)
     out: dict = {"valid": True, "scenario": scenario.describe(),
                  "dims": list(scenario.subsystem_dims), "verdict": cv.verdict,
                  "certified": bool(cv.certified), "certificate_margin": _finite(cv.margin),
@@ -184,8 +188,10 @@ def run(args: argparse.Namespace) -> int:
     quantities = _quantities(args.quantities)
     W = read_operator(args.operator)
     try:
+        _validated(scenario, W)  # bad input is one line, before any step line
+        say = announcer(args.quiet, scenario, quantities, args.method, options)
         out = check_report(scenario, W, options, quantities, args.method, args.second_pass,
-                           args.force_solve)
+                           args.force_solve, say)
     except UserError as exc:
         if args.json:
             print(json.dumps({"valid": False, "error": str(exc)}))

@@ -6,10 +6,9 @@ import argparse
 import json
 
 from .execute import run_sweep
+from .preflight import dry_run
 from .spec import load_spec
 from .spec_run import resolve_run
-from .stats import format_table, summarise
-from .storage import read_results
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -21,11 +20,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--profiles", help="profile file (default $ORDERLESS_PROFILES or "
                    "./orderless-profiles.yaml)")
     p.add_argument("--scheduler", dest="address", help="address of a running dask scheduler")
-    p.add_argument("--cluster", choices=["local", "address", "jobqueue", "serial"])
+    p.add_argument("--cluster", choices=["local", "address", "jobqueue", "allocation", "serial"])
     p.add_argument("--workers", type=int, help="local worker processes")
     p.add_argument("--samples-per-task", dest="samples_per_task", type=int)
     p.add_argument("--no-progress", dest="progress", action="store_const", const=False)
     p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    p.add_argument("--dry-run", action="store_true", help="print what would be computed and "
+                   "the estimated memory and time, then stop (nothing is started or written)")
     p.set_defaults(func=run)
 
 
@@ -36,13 +37,31 @@ def cli_overrides(args: argparse.Namespace) -> dict:
 
 
 def print_summary(path: str, as_json: bool) -> None:
+    from .results import read_results
+    from .stats import format_table, summarise, to_json  # scipy.stats: ~1 s to import
     summary = summarise(*read_results(path))
-    print(json.dumps(summary, indent=2) if as_json else format_table(summary))
+    print(to_json(summary) if as_json else format_table(summary))
+
+
+def print_dry_run(out: str, plan: dict, as_json: bool) -> None:
+    if as_json:
+        print(json.dumps(plan, indent=2))
+        return
+    print(f"{out}: {plan['n_samples']} samples in the spec, {plan['stored']} stored, "
+          f"{plan['to_compute']} to compute in {plan['tasks']} tasks of at most "
+          f"{plan['samples_per_task']} on {plan['workers']} worker(s)")
+    if plan["estimate"]:
+        print(f"estimate: {plan['estimate']}")
+    for w in plan["warnings"]:
+        print(f"warning: {w}")
 
 
 def run(args: argparse.Namespace) -> int:
     spec = load_spec(args.spec)
     run_spec = resolve_run(spec.run, cli_overrides(args), args.profiles)
+    if args.dry_run:
+        print_dry_run(args.output, dry_run(spec, args.output, run_spec), args.json)
+        return 0
     outcome = run_sweep(spec, args.output, run_spec)
     if not args.json:
         print(f"{outcome.path}: "

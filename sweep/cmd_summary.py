@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import argparse
-import json
 
-from .stats import format_table, summarise
-from .storage import read_results
+from .stats import format_table, summarise, to_json
+from .results import read_results
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -20,5 +19,5 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     summary = summarise(*read_results(args.file), method=args.ci)
-    print(json.dumps(summary, indent=2) if args.json else format_table(summary))
+    print(to_json(summary) if args.json else format_table(summary))
     return 0

@@ -1,11 +1,19 @@
-"""Running a sweep on dask: clients for each kind of cluster, submission, progress, resume.
+"""Running a sweep on dask (clients from :mod:`sweep.clusters`): submission, progress, resume.
 
 The driver is the only process that touches the HDF5 file.  Tasks are
-:func:`sweep.task.run_samples` calls on plain data (the spec as JSON and a list of sample
-indices), submitted with ``pure=False`` and unique keys; results are appended as they arrive.
+:func:`sweep.task.run_samples` calls on plain data (:meth:`sweep.plan.Plan.task_json` and a
+list of sample indices), submitted with ``pure=False`` and unique keys, at most a window of
+them at a time (the task lists are generated lazily); results are appended as they arrive.
 A worker that dies has its tasks re-run by dask; a sample already stored is never written
-twice.  Ctrl-C cancels the outstanding tasks, closes the file and re-raises: rerunning the
-same command resumes.
+twice.
+
+How a run ends, always with the data kept and the run's state recorded (in the file's
+``runs`` and in the progress file): ``complete``; ``interrupted`` by Ctrl-C (outstanding
+tasks cancelled, local workers ignore the terminal's SIGINT so only one line is printed);
+``terminated`` by SIGTERM or SIGHUP (:class:`sweep.errors.RunStopped`); ``failed`` with a
+one-line :class:`sweep.errors.UserError` or :class:`sweep.errors.EnvironmentFault` (disk
+full, lost scheduler, a task that kills its workers).  A run that fails before its first
+result leaves no new file behind.  Rerunning the same command resumes.
 """
 
 from __future__ import annotations
@@ -13,37 +21,24 @@ from __future__ import annotations
 import contextlib
 import math
 import os
-import sys
 import time
 import uuid
+from concurrent.futures import CancelledError
 from dataclasses import dataclass
-from typing import Iterator, TextIO
+from typing import Iterable, Iterator
 
-from .errors import UserError
-from .plan import Plan
+from .clusters import expected_workers, open_client, warm_up_workers
+from .errors import EnvironmentFault, RunStopped, UserError
+from .monitor import Monitor
+from .plan import Plan, missing_indices
+from .preflight import (auto_task_size, check_address_limits, check_limits,  # noqa: F401
+                        workers_and_memory)
+from .progress import ProgressFile
+from .signals import RunSignals
 from .spec import Spec
 from .spec_run import RunSpec
 from .storage import ResultFile
 from .task import run_samples, warm_up
-
-ONE_THREAD = {"OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1"}
-# dask settings for the clusters this module starts.  One task per worker thread at a time:
-# with every task assigned up front, one worker was left with the cheap tasks and idled
-# ~0.5 s of a 3.4 s two-worker sweep while work stealing did not move the rest (handing out
-# one at a time costs ~5 ms between tasks).  The sampling profiler cost the workers
-# ~8% of their time.  dask's housekeeping (20 ms event-loop ticks, 0.5 s system monitor with
-# GIL sampling, 0.1 s memory polls) took ~0.29 CPU-s per 3.4 s of an idle two-worker local
-# cluster, 4% of a 2-core machine; at the intervals below it takes 0.04 CPU-s.  The nannies
-# still enforce memory limits, polling every second.
-CLUSTER_CONFIG = {
-    "distributed.nanny.pre-spawn-environ": ONE_THREAD,
-    "distributed.scheduler.worker-saturation": 1.0,
-    "distributed.worker.profile.enabled": False,
-    "distributed.admin.tick.interval": "1s",
-    "distributed.admin.system-monitor.interval": "5s",
-    "distributed.admin.system-monitor.gil.enabled": False,
-    "distributed.worker.memory.monitor-interval": "1s",
-}
 
 
 @dataclass(frozen=True)
@@ -67,104 +62,160 @@ class SweepOutcome:
     task_seconds: float = 0.0
 
 
-class Progress:
-    """A one-line text progress bar with rate and ETA (stderr)."""
-
-    def __init__(self, total: int, enabled: bool, stream: TextIO | None = None) -> None:
-        self.total, self.enabled, self.stream = total, enabled, stream or sys.stderr
-        self.done, self.t0, self.last = 0, time.monotonic(), 0.0
-
-    def update(self, n: int) -> None:
-        self.done += n
-        t = time.monotonic()
-        if self.enabled and (t - self.last > 0.2 or self.done >= self.total):
-            self.last = t
-            rate = self.done / max(t - self.t0, 1e-9)
-            eta = (self.total - self.done) / rate if rate > 0 else float("inf")
-            width = 30
-            fill = int(width * self.done / max(self.total, 1))
-            self.stream.write(f"\r[{'#' * fill}{'.' * (width - fill)}] {self.done}/{self.total}"
-                              f"  {rate:.1f} samples/s  ETA {eta:.0f} s ")
-            self.stream.flush()
-
-    def close(self) -> None:
-        if self.enabled and self.total:
-            self.stream.write("\n")
+WINDOW_PER_THREAD = 4  # tasks submitted ahead per worker thread (the rest wait in the driver)
 
 
-def jobqueue_cluster(run: RunSpec, start: bool = True):
-    """The dask-jobqueue cluster of ``run.jobqueue`` (jobs submitted only if ``start``)."""
-    try:
-        import dask_jobqueue
-    except ImportError:
-        raise UserError("run.cluster='jobqueue' needs dask-jobqueue: pip install "
-                        "'orderless[jobqueue]'") from None
-    jq = run.jobqueue
-    cls = {"slurm": "SLURMCluster", "pbs": "PBSCluster", "sge": "SGECluster",
-           "lsf": "LSFCluster"}[jq.system]
-    cluster = getattr(dask_jobqueue, cls)(
-        cores=jq.cores, processes=jq.processes, memory=jq.memory, walltime=jq.walltime,
-        queue=jq.queue, account=jq.account, job_extra_directives=list(jq.extra_directives),
-        job_script_prologue=[*(f"export {k}={v}" for k, v in ONE_THREAD.items()),
-                             *jq.prologue])
-    if start:
-        cluster.scale(jobs=jq.jobs)
-    return cluster
+def _kept(store: ResultFile) -> str:
+    return f"{store.n_done} of {store.plan.n_samples} samples are stored in {str(store.path)!r}"
 
 
-@contextlib.contextmanager
-def open_client(run: RunSpec) -> Iterator:
-    """A dask Client for ``run`` (local, address or jobqueue); closed on exit."""
-    import dask
-    from distributed import Client, LocalCluster
-    if run.cluster == "address":
-        try:
-            client = Client(run.address, timeout="10s")
-        except (OSError, TimeoutError) as exc:
-            raise UserError(f"run.address={run.address!r}: cannot reach the scheduler "
-                            f"({exc}); expected a running dask scheduler") from None
-        with client:
-            yield client
-        return
-    with dask.config.set(CLUSTER_CONFIG):
-        if run.cluster == "jobqueue":
-            cluster = jobqueue_cluster(run)
-        else:
-            n = run.workers or os.cpu_count() or 1
-            cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                                   dashboard_address=None)
-        with cluster, Client(cluster) as client:
-            yield client
+def _task_failure(exc: Exception, client, run: RunSpec, store: ResultFile) -> UserError:
+    """The one-line error for a task that did not return rows (or a cluster call that
+    failed)."""
+    from distributed import KilledWorker
+    if isinstance(exc, UserError):
+        return exc
+    if isinstance(exc, KilledWorker):
+        return EnvironmentFault(f"workers kept dying while running a task (out of memory, or "
+                                f"killed?): {str(exc).splitlines()[0][:160]}; {_kept(store)}: "
+                                "check the workers' memory and logs, then rerun the same "
+                                "command to resume")
+    lost = getattr(client, "status", "running") != "running"
+    if lost or isinstance(exc, (CancelledError, OSError, TimeoutError)):
+        where = f"at {run.address}" if run.cluster == "address" else "of the cluster"
+        return EnvironmentFault(f"lost the dask scheduler {where} "
+                                f"({type(exc).__name__}); {_kept(store)}: restart the scheduler "
+                                "and its workers, then rerun the same command to resume")
+    return EnvironmentFault(f"a task failed on a worker ({type(exc).__name__}: "
+                            f"{str(exc).splitlines()[0][:150] if str(exc) else ''}); "
+                            f"{_kept(store)}; rerun the same command to resume")
 
 
-def _submit_all(client, spec_json: str, tasks: list[list[int]]):
-    tag = uuid.uuid4().hex[:8]
-    return [client.submit(run_samples, spec_json, t, pure=False,
-                          key=f"orderless-{tag}-{t[0]}-{t[-1]}") for t in tasks]
+def _store_rows(store: ResultFile, mon: Monitor, sig: RunSignals, rows: list) -> None:
+    with sig.critical():
+        mon.add(rows, store.append(rows))
 
 
-def _run_dask(store: ResultFile, spec_json: str, tasks, run: RunSpec, bar: Progress) -> None:
+def _started(store: ResultFile, run: RunSpec, mon: Monitor) -> None:
+    """The cluster is ready: create the file (if new) and record the run."""
+    store.create()
+    store.start_run(run.cluster)
+    if mon.file is not None:
+        mon.file.write(run_id=store.run_entry["id"], stored=store.n_done)
+
+
+def _run_dask(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run: RunSpec,
+              mon: Monitor, sig: RunSignals, n_tasks: int) -> None:
     from distributed import as_completed
     t0 = time.monotonic()
-    with open_client(run) as client:
-        client.run(warm_up, spec_json)  # imports and compiled problems, on every worker
-        store.run_entry["startup_s"] = round(time.monotonic() - t0, 3)
+    with contextlib.ExitStack() as stack:
+        stack.enter_context(_dask_logs())
+        mon.phase("starting cluster", _describe(run))
+        with sig.children_ignore_ctrl_c(run.cluster == "local"), _worker_setup(run):
+            client = stack.enter_context(open_client(run))
+        try:
+            if run.cluster == "address":  # before anything is compiled on those workers
+                check_address_limits(store, client, mon)
+            mon.phase("compiling", "robustness problems on every worker (and on workers that "
+                      "join later)")
+            warm_up_workers(client, task_json)
+            threads = sum(w.get("nthreads", 1)
+                          for w in client.scheduler_info()["workers"].values())
+        except (OSError, TimeoutError, CancelledError) as exc:  # the scheduler went away
+            _quiet_dask()
+            raise _task_failure(exc, client, run, store) from None
+        startup = round(time.monotonic() - t0, 3)
+        _started(store, run, mon)
+        store.run_entry["startup_s"] = startup
+        window = max(WINDOW_PER_THREAD * max(threads, 1), 8)
+        tag = uuid.uuid4().hex[:8]
+        it = iter(tasks)
+
+        def submit() -> object | None:
+            t = next(it, None)
+            return None if t is None else client.submit(
+                run_samples, task_json, t, pure=False, key=f"orderless-{tag}-{t[0]}-{t[-1]}")
+
+        first = [f for f in (submit() for _ in range(window)) if f is not None]
+        pending = set(first)
         with _compute_phase(store):
-            futures = _submit_all(client, spec_json, tasks)
+            mon.solving(n_tasks)
+            ac = as_completed(first)
             try:
-                for fut in as_completed(futures):
-                    rows = fut.result()
-                    bar.update(store.append(rows))
+                for fut in ac:
+                    pending.discard(fut)
+                    try:
+                        rows = fut.result()
+                    except Exception as exc:  # noqa: BLE001 - becomes one line
+                        raise _task_failure(exc, client, run, store) from None
+                    _store_rows(store, mon, sig, rows)
                     fut.release()
+                    nxt = submit()
+                    if nxt is not None:
+                        pending.add(nxt)
+                        ac.add(nxt)
             except BaseException:
-                client.cancel(futures)
+                _quiet_dask()
+                if run.cluster != "local" and client.status == "running" and pending:
+                    with contextlib.suppress(Exception):
+                        client.cancel(list(pending))  # external workers stop computing them
                 raise
 
 
-def _run_serial(store: ResultFile, spec_json: str, tasks, bar: Progress) -> None:
+def _run_serial(store: ResultFile, task_json: str, tasks: Iterable[list[int]], run: RunSpec,
+                mon: Monitor, sig: RunSignals, n_tasks: int) -> None:
+    mon.phase("compiling", "robustness problems in this process")
+    warm_up(task_json)
+    _started(store, run, mon)
     with _compute_phase(store):
+        mon.solving(n_tasks)
         for t in tasks:
-            bar.update(store.append(run_samples(spec_json, t)))
+            _store_rows(store, mon, sig, run_samples(task_json, t))
+
+
+def _quiet_dask() -> None:
+    """A run that stops reports it in one line: dask's own warnings while the cluster shuts
+    down after that (workers still busy, connections lost) would only bury it."""
+    import logging
+    logging.getLogger("distributed").setLevel(logging.CRITICAL)
+
+
+@contextlib.contextmanager
+def _dask_logs() -> Iterator[None]:
+    """The client's error logs (a lost scheduler: a traceback per reconnection attempt) are
+    off during a run, which turns every such fault into its one line; dask's log levels are
+    restored when the cluster is closed."""
+    import logging
+    loggers = [logging.getLogger(n) for n in ("distributed", "distributed.client")]
+    levels = [lg.level for lg in loggers]
+    loggers[1].setLevel(logging.CRITICAL)
+    try:
+        yield
+    finally:
+        for lg, level in zip(loggers, levels):
+            lg.setLevel(level)
+
+
+@contextlib.contextmanager
+def _worker_setup(run: RunSpec) -> Iterator[None]:
+    """Local workers load :mod:`sweep.worker_setup` at start (also after a restart)."""
+    if run.cluster != "local":
+        yield
+        return
+    import dask
+    with dask.config.set({"distributed.worker.preload": ["sweep.worker_setup"]}):
+        yield
+
+
+def _describe(run: RunSpec) -> str:
+    if run.cluster == "local":
+        return f"local, {run.workers or os.cpu_count() or 1} worker processes"
+    if run.cluster == "address":
+        return f"scheduler {run.address}"
+    if run.cluster == "allocation":
+        return f"SLURM allocation, {expected_workers(run)} srun worker(s)"
+    jq = run.jobqueue
+    return f"{jq.system} batch queue, {jq.jobs} job(s) x {jq.processes} worker(s)"
 
 
 @contextlib.contextmanager
@@ -175,23 +226,8 @@ def _compute_phase(store: ResultFile) -> Iterator[None]:
     try:
         yield
     finally:
-        store.run_entry["compute_s"] = round(time.monotonic() - t0, 3)
-
-
-MAX_AUTO_TASK = 32  # samples per task when the size is automatic: enough to batch the IPM
-TASKS_PER_WORKER = 8  # ... and never so few tasks that the last ones leave workers idle
-
-
-def auto_task_size(n_missing: int, run: RunSpec) -> int:
-    """Samples per task when ``run.samples_per_task`` is unset: as large as useful for the
-    batched solver (32) while leaving at least 8 tasks per worker for load balance."""
-    if run.cluster == "serial":
-        return MAX_AUTO_TASK
-    if run.cluster == "jobqueue" and run.jobqueue is not None:
-        workers = run.jobqueue.jobs * run.jobqueue.processes
-    else:
-        workers = run.workers or os.cpu_count() or 1
-    return max(1, min(MAX_AUTO_TASK, math.ceil(n_missing / (TASKS_PER_WORKER * workers))))
+        if store.run_entry is not None:
+            store.run_entry["compute_s"] = round(time.monotonic() - t0, 3)
 
 
 def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
@@ -199,25 +235,46 @@ def run_sweep(spec: Spec, out: str, run: RunSpec | None = None) -> SweepOutcome:
     run = run or spec.run
     plan = Plan(spec)
     t0 = time.monotonic()
-    with ResultFile(out, plan) as store:
-        done = store.done_indices()
-        missing = [i for i in range(plan.n_samples) if i not in done]
-        tasks = plan.tasks(missing, run.samples_per_task or auto_task_size(len(missing), run))
-        bar = Progress(len(missing), run.progress)
-        store.start_run(run.cluster)
-        state = "interrupted"
+    with ResultFile(out, plan) as store, RunSignals() as sig:
+        n_missing = plan.n_samples - store.n_done
+        per_task = run.samples_per_task or auto_task_size(n_missing, run)
+        progress = ProgressFile(out, {"spec_hash": plan.spec_hash(), "host": os.uname().nodename,
+                                      "pid": os.getpid(), "cluster": run.cluster,
+                                      "n_samples": plan.n_samples})
+        mon = Monitor(n_missing, run.progress, progress, stored=store.n_done)
+        state, error = "interrupted", None
         try:
-            if tasks:
-                spec_json = spec.model_dump_json()
-                if run.cluster == "serial":
-                    _run_serial(store, spec_json, tasks, bar)
+            with mon:
+                if run.cluster != "address":
+                    check_limits(store, mon, n_missing, *workers_and_memory(run))
+                tasks = plan.tasks(missing_indices(store.done_mask()), per_task)
+                n_tasks = math.ceil(n_missing / per_task)
+                if n_missing == 0:
+                    _started(store, run, mon)
+                elif run.cluster == "serial":
+                    _run_serial(store, plan.task_json(), tasks, run, mon, sig, n_tasks)
                 else:
-                    _run_dask(store, spec_json, tasks, run, bar)
-            state = "complete"
+                    _run_dask(store, plan.task_json(), tasks, run, mon, sig, n_tasks)
+                state = "complete"
+        except KeyboardInterrupt:
+            raise KeyboardInterrupt(f"interrupted; {_kept(store)}: rerun the same command to "
+                                    "resume") from None
+        except RunStopped as exc:
+            state, error = "terminated", f"stopped by {exc.name}"
+            exc.message = f"stopped by {exc.name}; {_kept(store)}: rerun the same command to resume"
+            raise
+        except UserError as exc:
+            state, error = "failed", str(exc)
+            raise
+        except Exception as exc:
+            state, error = "failed", f"{type(exc).__name__}: {exc}"
+            raise
         finally:
-            bar.close()
-            store.finish(state)
+            store.finish(state, error)
+            mon.finish(state, error)
+            if store.f is None or store.remove_if_unused():
+                progress.remove()
         e = store.run_entry
-    return SweepOutcome(str(out), plan.n_samples, len(done), e["computed"],
+    return SweepOutcome(str(out), plan.n_samples, plan.n_samples - n_missing, e["computed"],
                         time.monotonic() - t0, e.get("startup_s", 0.0), e.get("compute_s", 0.0),
                         e["storage_s"], e["task_s"])

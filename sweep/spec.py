@@ -15,12 +15,13 @@ from pathlib import Path
 from typing import Annotated, Any, Literal, Union
 
 import yaml
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import (BaseModel, ConfigDict, Field, PrivateAttr, ValidationError,
+                      model_validator)
 
 from .errors import UserError
 from .spec_run import RunSpec
 
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 4
 
 
 class Strict(BaseModel):
@@ -59,6 +60,10 @@ class NamedFamily(Strict):
                           description="white-noise mixture weight p of p W + (1-p) 1°")
 
 
+# family fields added after schema 3, with the default that leaves the hash unchanged
+ADDED_FAMILY_FIELDS: dict[str, Any] = {"steps": None}
+
+
 class EnsembleFamily(Strict):
     """A random ensemble with its measure named (workers/THEORY.md §8; workers/ensembles.py)."""
 
@@ -81,7 +86,9 @@ class FilesFamily(Strict):
     """Operators read from files: ``.npy`` of shape (D, D) or (n, D, D), or HDF5 datasets."""
 
     kind: Literal["files"]
-    paths: list[str] = Field(min_length=1, description="files, relative to the spec's folder")
+    paths: list[str] = Field(min_length=1, description=(
+        "files, relative to the spec's folder (kept as written; the results file records each "
+        "file's sha256 of its operators, so the folder can move)"))
     dataset: str | None = Field(None, description="HDF5 dataset name (required for .h5 files)")
     weight: float = Field(1.0, ge=0.0, le=1.0,
                           description="white-noise mixture weight p of p W + (1-p) 1°")
@@ -108,12 +115,20 @@ class Axis(Strict):
                              "num")
         return self
 
-    def points(self) -> list[float]:
+    @property
+    def size(self) -> int:
+        """Number of points on the axis (without listing them)."""
+        return len(self.values) if self.values is not None else self.num
+
+    def point(self, k: int) -> float:
+        """The k-th value of the axis."""
         if self.values is not None:
-            return list(self.values)
-        n = self.num
-        step = 0.0 if n == 1 else (self.stop - self.start) / (n - 1)
-        return [self.start + i * step for i in range(n)]
+            return self.values[k]
+        step = 0.0 if self.num == 1 else (self.stop - self.start) / (self.num - 1)
+        return self.start + k * step
+
+    def points(self) -> list[float]:
+        return [self.point(k) for k in range(self.size)]
 
 
 class GameSpec(Strict):
@@ -135,9 +150,10 @@ class ComputeSpec(Strict):
         "auto", description="separability characterisation (auto: exact N<=3, bounds N>=4)")
     solver: Literal["AUTO", "IPM", "SCS", "CLARABEL", "ADMM"] = Field(
         "AUTO", description="SDP back-end: AUTO (the built-in batched interior point IPM for "
-        "small problems, e.g. bipartite qubits; the matrix-free ADMM when the conic matrix "
-        "would not fit in memory, e.g. four qubit parties; SCS otherwise), IPM, SCS, "
-        "CLARABEL or ADMM (random robustness only)")
+        "small problems, e.g. bipartite qubits; the built-in matrix-free splitting ADMM for "
+        "the random robustness with PSD blocks of 32x32 or more, e.g. three qubit parties, "
+        "and whenever the conic matrix would not fit in memory, e.g. four qubit parties; "
+        "SCS otherwise), IPM, SCS, CLARABEL or ADMM")
     eps: float = Field(1e-6, gt=0, description="solver eps_abs = eps_rel")
     max_iters: int = Field(200_000, ge=1, description="solver iteration cap")
     tol: float = Field(1e-6, gt=0, description="decision threshold on the robustness")
@@ -172,6 +188,7 @@ class Spec(Strict):
     grid: list[Axis] = Field(default_factory=list, description="axes; the grid is their product")
     compute: ComputeSpec = Field(default_factory=ComputeSpec)
     run: RunSpec = Field(default_factory=RunSpec, description="where to run (not hashed)")
+    _source_dir: str | None = PrivateAttr(None)  # folder of the spec file (files' paths)
 
     @model_validator(mode="after")
     def _consistent(self) -> "Spec":
@@ -180,8 +197,17 @@ class Spec(Strict):
         return self
 
     def science(self) -> dict[str, Any]:
-        """Everything that determines the results (the spec without ``run``)."""
-        return self.model_dump(mode="json", exclude={"run"})
+        """Everything that determines the results (the spec without ``run``).
+
+        A family field added after files were written enters only when set away from its
+        default (:data:`ADDED_FAMILY_FIELDS`), so an unchanged old spec keeps its hash and
+        its results file resumes."""
+        science = self.model_dump(mode="json", exclude={"run"})
+        family = science["family"]
+        for name, default in ADDED_FAMILY_FIELDS.items():
+            if name in family and family[name] == default:
+                del family[name]
+        return science
 
     def spec_hash(self) -> str:
         text = json.dumps(self.science(), sort_keys=True, separators=(",", ":"))
@@ -189,6 +215,12 @@ class Spec(Strict):
 
     def to_yaml(self) -> str:
         return yaml.safe_dump(self.model_dump(mode="json"), sort_keys=False)
+
+    @property
+    def source_dir(self) -> Path:
+        """The folder relative ``family.paths`` are read from: the spec file's folder, else
+        the current directory."""
+        return Path(self._source_dir) if self._source_dir else Path.cwd()
 
 
 def format_error(exc: ValidationError, source: str) -> str:
@@ -208,15 +240,25 @@ def format_error(exc: ValidationError, source: str) -> str:
     return f"{source}: {path}={shown}: {msg}{more}"
 
 
-def parse_spec(data: Any, source: str = "spec") -> Spec:
-    """Validate a mapping as a :class:`Spec`; a bad field raises a one-line UserError."""
+def parse_spec(data: Any, source: str = "spec", source_dir: str | Path | None = None) -> Spec:
+    """Validate a mapping as a :class:`Spec`; a bad field raises a one-line UserError.
+
+    ``source_dir`` is the folder relative ``family.paths`` are read from (default: the
+    current directory when the operators are read).
+    """
     if not isinstance(data, dict):
         raise UserError(f"{source}: top level is {type(data).__name__}, expected a mapping "
                         "with keys scenario, family, grid, compute, run")
+    if "profiles" in data and "family" not in data:
+        raise UserError(f"{source} is a profile file (top-level 'profiles'), not a job spec; "
+                        f"use it as `--profiles {source} --profile NAME` with a job spec")
     try:
-        return Spec.model_validate(data)
+        spec = Spec.model_validate(data)
     except ValidationError as exc:
         raise UserError(format_error(exc, source)) from None
+    if source_dir is not None:
+        spec._source_dir = str(Path(source_dir).resolve())
+    return spec
 
 
 def load_spec(path: str | Path) -> Spec:
@@ -225,21 +267,17 @@ def load_spec(path: str | Path) -> Spec:
     if not p.is_file():
         raise UserError(f"spec file {str(p)!r} does not exist, expected a YAML job spec")
     try:
-        data = yaml.safe_load(p.read_text())
+        text = p.read_text()
+    except (OSError, UnicodeDecodeError) as exc:
+        raise UserError(f"spec file {str(p)!r} cannot be read ({exc}); expected a YAML text "
+                        "file") from None
+    try:
+        data = yaml.safe_load(text)
     except yaml.YAMLError as exc:
         line = getattr(getattr(exc, "problem_mark", None), "line", -1) + 1
         raise UserError(f"spec file {str(p)!r}: not valid YAML (line {line}: "
                         f"{getattr(exc, 'problem', exc)})") from None
-    data = _anchor_paths(data, p.parent)
-    return parse_spec(data, str(p))
-
-
-def _anchor_paths(data: Any, folder: Path) -> Any:
-    fam = data.get("family") if isinstance(data, dict) else None
-    if isinstance(fam, dict) and isinstance(fam.get("paths"), list):
-        fam["paths"] = [str((folder / q).resolve()) if isinstance(q, str) else q
-                        for q in fam["paths"]]
-    return data
+    return parse_spec(data, str(p), p.parent)
 
 
 if __name__ == "__main__":  # pragma: no cover - thin entry point

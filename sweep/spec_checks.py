@@ -17,6 +17,18 @@ if TYPE_CHECKING:  # pragma: no cover
 
 NON_AXIS_FIELDS = {"kind", "name", "measure", "order", "paths", "dataset"}
 RANDOM_MEASURES = ("valid_direction", "wishart", "hs_volume", "comb", "comb_mixture")
+# the parameters each ensemble's sampler reads (sweep.plan.Plan.operator), besides weight
+MEASURE_PARAMS = {"valid_direction": ("u",), "wishart": ("rank",), "hs_volume": ("steps",),
+                  "comb": ("order", "memory_dim"), "comb_mixture": ("n_combs", "memory_dim")}
+
+
+def used_params(fam) -> tuple[str, ...]:
+    """The family fields that change its operators (the others are ignored by it)."""
+    if fam.kind == "ensemble":
+        return MEASURE_PARAMS[fam.measure] + ("weight",)
+    if fam.kind == "named":
+        return ("d", "weight") if fam.name == "quantum_switch" else ("weight",)
+    return ("weight",)
 
 
 def resolve_scenario(spec: "Spec") -> Scenario:
@@ -47,21 +59,61 @@ def _check_scenario(spec: "Spec") -> None:
                          f"{list(own.subsystem_dims)})")
 
 
+def _what(fam) -> str:
+    return {"ensemble": f"measure {getattr(fam, 'measure', '')!r}",
+            "named": f"process {getattr(fam, 'name', '')!r}"}.get(fam.kind, "family kind 'files'")
+
+
+def _check_ignored(spec: "Spec") -> None:
+    """A family field set to a non-default value that its measure or process ignores."""
+    fam = spec.family
+    used = used_params(fam)
+    for name, field in type(fam).model_fields.items():
+        if name in NON_AXIS_FIELDS or name in used or name not in fam.model_fields_set:
+            continue
+        if getattr(fam, name) != field.default:
+            raise ValueError(f"family.{name}={getattr(fam, name)!r} is ignored by {_what(fam)} "
+                             f"(it uses {', '.join(used)}); expected it removed")
+
+
+def _axis_samples(axis) -> list[float]:
+    """The values of an axis worth validating: all listed values, or the two ends of a
+    linspace (the field constraints are intervals, so the ends decide)."""
+    if axis.values is not None:
+        return list(axis.values)
+    return [axis.start, axis.stop]
+
+
 def _check_grid(spec: "Spec") -> None:
     fam = spec.family
     fields = type(fam).model_fields
-    seen = set()
+    used = used_params(fam)
+    seen: set[str] = set()
     for i, axis in enumerate(spec.grid):
         allowed = sorted(set(fields) - NON_AXIS_FIELDS)
         if axis.param not in allowed:
             raise ValueError(f"grid.{i}.param={axis.param!r} is not a numeric parameter of "
                              f"family kind {fam.kind!r}; expected one of {allowed}")
+        axes = [p for p in used if p not in NON_AXIS_FIELDS and p != "d"]
+        if axis.param == "d":
+            raise ValueError(f"grid.{i}.param='d' would change the scenario between grid "
+                             "points; expected one sweep per target dimension")
+        if axis.param not in used:
+            raise ValueError(f"grid.{i}.param={axis.param!r} is ignored by {_what(fam)}, so "
+                             f"every grid point would be the same; expected one of {axes}")
         if axis.param in seen:
             raise ValueError(f"grid.{i}.param={axis.param!r} appears twice, expected each "
                              "parameter on one axis")
         seen.add(axis.param)
-        for v in axis.points():
-            value = int(v) if fields[axis.param].annotation in (int, int | None) else v
+        integer = fields[axis.param].annotation in (int, int | None)
+        if integer and axis.values is None and axis.num > 1:
+            step = (axis.stop - axis.start) / (axis.num - 1)
+            if step != int(step):
+                raise ValueError(f"grid.{i}: start={axis.start}, stop={axis.stop}, "
+                                 f"num={axis.num} gives steps of {step:g}, expected integers "
+                                 f"for {axis.param!r}")
+        for v in _axis_samples(axis):
+            value = int(v) if integer else v
             if value != v:
                 raise ValueError(f"grid.{i}.values contains {v!r}, expected integers for "
                                  f"{axis.param!r}")
@@ -105,6 +157,7 @@ def check_spec(spec: "Spec") -> None:
     """Every cross-field rule of the spec (called by the model validator)."""
     _check_scenario(spec)
     scen = resolve_scenario(spec)
+    _check_ignored(spec)
     _check_grid(spec)
     _check_family(spec, scen)
     _check_game(spec, scen)

@@ -3,6 +3,7 @@
 
 from __future__ import annotations
 
+import inspect
 import json
 
 from pydantic import BaseModel
@@ -10,13 +11,14 @@ from pydantic_core import PydanticUndefined
 
 from .spec import (Axis, ComputeSpec, EnsembleFamily, FilesFamily, GameSpec, NamedFamily,
                    ScenarioSpec, Spec)
-from .spec_run import JobqueueSpec, RunSpec
+from .spec_run import AllocationSpec, JobqueueSpec, RunSpec, SecuritySpec
 
 SECTIONS: tuple[tuple[str, type[BaseModel]], ...] = (
     ("top level", Spec), ("scenario", ScenarioSpec), ("family (kind: named)", NamedFamily),
     ("family (kind: ensemble)", EnsembleFamily), ("family (kind: files)", FilesFamily),
     ("grid[] (one axis)", Axis), ("compute", ComputeSpec), ("compute.game", GameSpec),
-    ("run", RunSpec), ("run.jobqueue", JobqueueSpec),
+    ("run", RunSpec), ("run.jobqueue", JobqueueSpec), ("run.allocation", AllocationSpec),
+    ("run.security", SecuritySpec),
 )
 
 
@@ -38,7 +40,8 @@ def _default(field) -> str:
 
 
 def section(title: str, model: type[BaseModel]) -> str:
-    lines = [f"### `{title}`", "", (model.__doc__ or "").strip(), "",
+    doc = " ".join(inspect.cleandoc(model.__doc__ or "").split())
+    lines = [f"### `{title}`", "", doc, "",
              "| key | type | default | meaning |", "|---|---|---|---|"]
     for name, field in model.model_fields.items():
         lines.append(f"| `{name}` | {_type_name(field.annotation)} | {_default(field)} | "

@@ -6,7 +6,7 @@
   ``exact`` = Clopper-Pearson);
 * quantiles (5, 25, 50, 75, 95 %) of each stored robustness over samples with a value;
 * counts of certified, undecided, invalid, failed (a solve failed) and error samples;
-* solve-time mean, median and maximum;
+* mean, median and maximum of each sample's share of solver time (``solve_time_share``);
 * with a game quantity: the game's causal bound (LP) and the fraction of samples whose
   see-saw value exceeds it by more than 1e-6 (a certified causal-inequality violation, since
   see-saw values are achievable).
@@ -71,10 +71,10 @@ def point_stats(rows: np.ndarray, game: str | None, method: str) -> dict[str, An
             q = _quantiles(rows[f"r_{kind}{suffix}"])
             if q is not None:
                 out[f"r_{kind}{suffix}"] = q
-    t = rows["solve_time"][np.isfinite(rows["solve_time"])]
+    t = rows["solve_time_share"][np.isfinite(rows["solve_time_share"])]
     if t.size:
-        out["solve_time"] = {"mean": float(t.mean()), "median": float(np.median(t)),
-                             "max": float(t.max())}
+        out["solve_time_share"] = {"mean": float(t.mean()), "median": float(np.median(t)),
+                                   "max": float(t.max())}
     if game is not None:
         g = rows["game_value"][np.isfinite(rows["game_value"])]
         bound = game_bound(game)
@@ -97,37 +97,78 @@ def summarise(attrs: dict[str, Any], samples: np.ndarray, points: np.ndarray,
         entry = {"point": p, "coords": dict(zip(axes, map(float, points[p])))}
         entry.update(point_stats(rows, game, method))
         per_point.append(entry)
+    runs = json.loads(attrs["runs"])
     return {"spec_hash": attrs["spec_hash"], "n_samples": int(attrs["n_samples"]),
             "stored": int(len(samples)), "complete": len(samples) == int(attrs["n_samples"]),
+            "live": bool(attrs.get("live", False)),
+            "state": runs[-1]["state"] if runs else "none",
             "family": spec["family"], "axes": axes, "ci_method": method,
-            "runs": json.loads(attrs["runs"]), "points": per_point}
+            "runs": runs, "points": per_point}
+
+
+CI_NAMES = {"wilson": "Wilson score", "exact": "Clopper-Pearson (exact)"}
+
+
+def strict_json(value: Any) -> Any:
+    """``value`` with nan and infinities as None, so ``json.dumps`` writes strict JSON
+    (a fraction over zero decided samples is nan)."""
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: strict_json(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [strict_json(v) for v in value]
+    return value
+
+
+def to_json(summary: dict[str, Any]) -> str:
+    """The summary as strict JSON (``orderless summary --json``)."""
+    return json.dumps(strict_json(summary), indent=2, allow_nan=False)
 
 
 def _fmt(x: float) -> str:
     return "nan" if not np.isfinite(x) else f"{x:.4g}"
 
 
+def _status_line(summary: dict[str, Any]) -> str:
+    if summary["live"]:
+        return "  (sweep still running: `orderless status` shows its progress)"
+    if summary["complete"]:
+        return ""
+    if summary["state"] == "dead":
+        return "  (incomplete: the last run died without recording its end; rerun to resume)"
+    return "  (incomplete: rerun to resume)"
+
+
 def format_table(summary: dict[str, Any]) -> str:
-    """A plain-text table, one line per grid point."""
+    """A plain-text table, one line per grid point; each column as wide as its widest
+    entry, so long intervals do not shift the columns after them."""
     fam = summary["family"]
     head = (f"family: {fam.get('kind')} {fam.get('name') or fam.get('measure') or ''}  "
             f"samples stored: {summary['stored']}/{summary['n_samples']}"
-            f"{'' if summary['complete'] else '  (incomplete: rerun to resume)'}")
-    cols = summary["axes"] + ["n", "cert", "nonsep", "frac", "95% CI", "undec", "fail", "R_r med",
-                              "t_solve"]
+            f"{_status_line(summary)}\n"
+            f"(frac: fraction nonseparable of the certified verdicts, 95% CI: "
+            f"{CI_NAMES.get(summary['ci_method'], summary['ci_method'])}; R_r med: median "
+            "random robustness, or of its upper bound where only bounds exist, as max(R, 0); "
+            "t_solve: median solver seconds per sample)")
+    cols = summary["axes"] + ["n", "cert", "nonsep", "frac", "95% CI", "undec", "invalid",
+                              "failed", "error", "R_r med", "t_solve"]
     has_game = any("game" in p for p in summary["points"])
     cols += ["game viol"] if has_game else []
-    head += "\n(R_r med: median random robustness, or of its upper bound where only bounds exist)"
-    lines = [head, "  ".join(f"{c:>10}" for c in cols)]
+    rows = []
     for p in summary["points"]:
         fr = p["nonseparable_fraction"]
         vals = [_fmt(p["coords"][a]) for a in summary["axes"]] + [
             str(p["n"]), str(p["certified"]), str(p["nonseparable"]), _fmt(fr["fraction"]),
-            f"[{_fmt(fr['ci_low'])},{_fmt(fr['ci_high'])}]", str(p["undecided"]),
-            str(p["failed"] + p["error"] + p["invalid"]),
-            _fmt(p.get("r_random", p.get("r_random_hi", {})).get("q50", float("nan"))),
-            _fmt(p.get("solve_time", {}).get("median", float("nan")))]
+            f"[{_fmt(fr['ci_low'])}, {_fmt(fr['ci_high'])}]", str(p["undecided"]),
+            str(p["invalid"]), str(p["failed"]), str(p["error"]),
+            _fmt(max(p.get("r_random", p.get("r_random_hi", {})).get("q50", float("nan")),
+                     0.0)),
+            _fmt(p.get("solve_time_share", {}).get("median", float("nan")))]
         if has_game:
             vals.append(_fmt(p["game"]["violating"]["fraction"]))
-        lines.append("  ".join(f"{v:>10}" for v in vals))
+        rows.append(vals)
+    widths = [max([len(c)] + [len(r[j]) for r in rows]) for j, c in enumerate(cols)]
+    lines = [head, "  ".join(c.rjust(w) for c, w in zip(cols, widths))]
+    lines += ["  ".join(v.rjust(w) for v, w in zip(r, widths)) for r in rows]
     return "\n".join(lines)

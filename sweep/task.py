@@ -1,8 +1,8 @@
 """The task function: a pure top-level function from plain data to plain results.
 
-``run_samples(spec_json, indices)`` rebuilds the plan from the spec's JSON (cached per worker
-process, so files are read and problems compiled once), computes every sample and returns one
-dict per sample.  It never raises for a sample: an invalid operator is status ``invalid``, a
+``run_samples(spec_json, indices)`` rebuilds the plan from :meth:`sweep.plan.Plan.task_json`
+(cached per worker process, so files are read and problems compiled once), computes every
+sample and returns one dict per sample.  It never raises for a sample: an invalid operator is status ``invalid``, a
 failed solve ``failed``, any other exception ``error`` with its message.  The robustness SDPs
 of a task's samples are solved as one batch when the back-end batches (the interior-point
 ``IPM``); each sample's arithmetic in a batch is its own and every cold SCS solve gets a
@@ -22,26 +22,24 @@ from typing import Any
 
 import numpy as np
 
-from workers.games import get_game
-from workers.seesaw import seesaw
 from workers.certified import analyse_and_certify_many
 from workers.robustness import get_problem
 from workers.separability import analyse_many, methods_for
 from workers.solvers import SolverOptions
 from workers.validity import check_validity, hermitian_part
 
-from .plan import Plan
-from .spec import Spec
+from .plan import Plan, plan_from_task_json
 
 NAN = float("nan")
 FIELDS_FLOAT = ("min_eig", "r_random", "r_random_lo", "r_random_hi", "r_generalized",
                 "r_generalized_lo", "r_generalized_hi", "margin", "res_pri", "res_dual", "gap",
-                "solve_time", "game_value", "aux", "cert_margin")
+                "solve_time_share", "game_value", "aux", "cert_margin")
 
 
 @lru_cache(maxsize=4)
 def plan_from_json(spec_json: str) -> Plan:
-    return Plan(Spec.model_validate_json(spec_json))
+    """The plan of :meth:`sweep.plan.Plan.task_json` (or of a plain spec JSON), cached."""
+    return plan_from_task_json(spec_json)
 
 
 def _worker_name() -> str:
@@ -55,7 +53,7 @@ def _worker_name() -> str:
 def blank(index: int, point: int, rep: int) -> dict[str, Any]:
     row: dict[str, Any] = {f: NAN for f in FIELDS_FLOAT}
     row.update(index=index, point=point, rep=rep, status="ok", verdict="", valid=True,
-               solver_status="", iterations=0, message="", worker=_worker_name(),
+               solver_status="", iterations=0, solve_batch=0, message="", worker=_worker_name(),
                operator=None, witness=None, certified=False, passes=0, certificate=None,
                cert_operator=None)
     return row
@@ -79,8 +77,24 @@ def _robustness_many(plan: Plan, Ws: list[np.ndarray], rows: list[dict[str, Any]
         done = [(res, None) for res in analyse_many(
             plan.scenario, Ws, tuple(comp.robustness), comp.method, opts,
             force_solve=comp.force_solve, warm_start=comp.warm_start)]
+    batched = sum(_batched(res) for res, _ in done)
     for W, row, (res, cv) in zip(Ws, rows, done):
         _record(comp, W, row, res, cv)
+        row["solve_batch"] = batched if _batched(res) else (1 if _solves(res) else 0)
+
+
+def _solves(res) -> list:
+    """The SDP solves behind a sample's analysis (comb shortcuts are not solves)."""
+    out = []
+    for b in res.bounds.values():
+        out += [b.lower_from] + ([] if b.exact else [b.upper_from])
+    return [r for r in out if r.solver != "shortcut"]
+
+
+def _batched(res) -> bool:
+    """Whether the sample's solves were one batched interior-point call shared with the
+    other samples of its task (the IPM splits the batch's time equally)."""
+    return any(r.solver == "IPM" and not r.fallback_from for r in _solves(res))
 
 
 def _record(comp, W: np.ndarray, row: dict[str, Any], res, cv) -> None:
@@ -102,7 +116,7 @@ def _record(comp, W: np.ndarray, row: dict[str, Any], res, cv) -> None:
     deciding = res.witness_result()
     row.update(solver_status=deciding.status, iterations=deciding.iterations,
                res_pri=deciding.res_pri, res_dual=deciding.res_dual, gap=deciding.gap,
-               solve_time=sum(r.solve_time for r in solves))
+               solve_time_share=sum(r.solve_time for r in solves))
     if any(not r.ok for r in solves):
         row["status"] = "failed"
     if comp.store_witnesses and deciding.witness is not None:
@@ -110,6 +124,8 @@ def _record(comp, W: np.ndarray, row: dict[str, Any], res, cv) -> None:
 
 
 def _game(plan: Plan, index: int, W: np.ndarray, row: dict[str, Any]) -> None:
+    from workers.games import get_game
+    from workers.seesaw import seesaw  # imports cvxpy (~1 s): only when a game is asked for
     g = plan.spec.compute.game
     dims = [(p.d_in, p.d_out) for p in plan.scenario.parties]
     seed = np.random.SeedSequence(plan.spec.compute.seed, spawn_key=(index, 1))

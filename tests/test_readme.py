@@ -28,3 +28,13 @@ def test_spec_reference_is_current():
     from sweep.spec_doc import markdown_reference
 
     assert markdown_reference().strip() in (ROOT / "README.md").read_text()
+
+
+def test_ci_runs_the_readme_first_command_parsed_from_the_readme():
+    """CI proves the first command on a fresh venv by parsing it from README.md, so the
+    README cannot drift from what CI runs (issue: a green CI once hid a missing dependency)."""
+    ci = (ROOT / ".ci" / "run").read_text()
+    assert "readme_first_command.py" in ci
+    script = (ROOT / ".ci" / "readme_first_command.py").read_text()
+    assert "README.md" in script and "-m\", \"venv\"" in script
+    assert _first_block()[0] not in script  # parsed, not copied

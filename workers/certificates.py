@@ -130,6 +130,21 @@ def _exact_blocks(blocks: np.ndarray, dims: tuple[int, ...], what: str = "certif
 
 
 def _min_eig(coeffs: np.ndarray, dims: tuple[int, ...], scale: int) -> Fraction:
+    """Proven lower bound on the smallest eigenvalue of ``sum_alpha (c_alpha / n_alpha)
+    tau_alpha / scale``.  A subsystem on which every nonzero coefficient is the identity is
+    an exact tensor factor ``A' ⊗ 1`` (the identity's norm there is d), and ``A ⊗ 1`` has
+    the eigenvalues of A: the bound is taken on the smaller matrix A'."""
+    codes = pattern_codes(dims)
+    used = int(np.bitwise_or.reduce(codes[np.asarray(coeffs != 0, dtype=bool)], initial=0))
+    small = tuple(d if (used >> s) & 1 else 1 for s, d in enumerate(dims))
+    if small != tuple(dims):
+        keep = np.ones(len(coeffs), dtype=bool)
+        local = np.unravel_index(np.arange(len(coeffs)), [d * d for d in dims])
+        for s, (d, r) in enumerate(zip(dims, small)):
+            if r != d:
+                keep &= local[s] == 0
+        factor = int(np.prod([d for d, r in zip(dims, small) if r != d]))
+        coeffs, dims, scale = coeffs[keep], small, scale * factor
     re, im, nd = exact_matrix(coeffs, dims)
     return min_eigenvalue_lower_bound(re, im, nd * scale)
 

@@ -146,7 +146,9 @@ def second_pass_options(scenario: Scenario, options: SolverOptions, mode: str = 
     ``clarabel``: the interior-point solver at the same tolerances; ``tight``: SCS with
     tolerances 100x smaller (floor 1e-12) and 5x the iteration cap; ``auto``: Clarabel up to
     32 x 32 operators, ``tight`` above (Clarabel's dense PSD blocks cost ~4 GB and minutes at
-    64 x 64 on a 24 GiB machine); ``none``: no second pass.
+    64 x 64 on a 24 GiB machine); ``none``: no second pass.  Where the conic matrix would
+    not fit in memory (four qubit parties), ``tight`` is the matrix-free solver at 10x
+    smaller tolerances instead.
     """
     if mode not in SECOND_PASS_MODES:
         raise ValueError(f"second_pass={mode!r}, expected one of {list(SECOND_PASS_MODES)}")
@@ -154,6 +156,13 @@ def second_pass_options(scenario: Scenario, options: SolverOptions, mode: str = 
         return None
     if mode == "clarabel" or (mode == "auto" and scenario.dim <= 32):
         return replace(options, solver="CLARABEL")
+    from .layout import build_layout
+    from .solver_admm import fits_in_memory
+
+    method = "exact" if scenario.n_parties <= 3 else "sufficient"
+    if not fits_in_memory(build_layout(scenario, method)):  # no conic matrix: stay matrix-free
+        return replace(options, solver="ADMM", eps_abs=max(options.eps_abs / 10, 1e-12),
+                       eps_rel=max(options.eps_rel / 10, 1e-12))
     eps = max(options.eps_abs / 100, 1e-12)
     return replace(options, solver="SCS", eps_abs=eps, eps_rel=max(options.eps_rel / 100, 1e-12),
                    max_iters=5 * options.max_iters)

@@ -11,7 +11,10 @@ Each element is a positive multiple of the element of the same index in
 A Hermitian matrix with exact integer parts ``(re, im)`` (see :mod:`workers.exact_psd`) has
 integer coefficients ``c_alpha = Tr(tau_alpha (re + i im))``, and
 ``A = sum_alpha (c_alpha / n_alpha) tau_alpha``.  Transforms contract one subsystem at a time
-on object arrays of python integers, so no step rounds.
+with small integer matrices, so no step rounds: the python integers are cut into limbs of
+``b`` bits, each limb is transformed in float64 (every partial sum is an integer below
+``2^b`` times the transform's growth factor, checked to stay below 2^53, so floating point
+is exact there), and the limbs' results are recombined in python integers.
 """
 
 from __future__ import annotations
@@ -78,6 +81,38 @@ def _skip(d: int) -> bool:
     return d == 1
 
 
+def _growth(mats) -> int:
+    """Factor by which the transform can grow the largest absolute entry (per subsystem,
+    the largest row sum of |real| + |imaginary| parts of its matrix, multiplied)."""
+    g = 1
+    for mr, mi in mats:
+        g *= int(np.max(np.sum(np.abs(mr.astype(np.int64)) + np.abs(mi.astype(np.int64)),
+                               axis=1)))
+    return g
+
+
+def _exact_transform(tr: np.ndarray, ti: np.ndarray, mats, axes) -> tuple[np.ndarray, np.ndarray]:
+    """``mats[k]`` (integer (re, im) pairs) applied along ``axes[k]`` of the complex integer
+    array tr + i ti (object arrays), exactly."""
+    bits = 52 - max(1, _growth(mats)).bit_length() - 1
+    big = int(max(np.max(np.abs(tr), initial=0), np.max(np.abs(ti), initial=0)))
+    n_limbs = max(1, -(-big.bit_length() // bits))
+    mask = (1 << bits) - 1
+    fmats = [(mr.astype(float), mi.astype(float)) for mr, mi in mats]
+    out_r = np.zeros(tr.shape, dtype=object)
+    out_i = np.zeros(ti.shape, dtype=object)
+    signs = [np.where(tr < 0, -1, 1), np.where(ti < 0, -1, 1)]
+    mags = [np.abs(tr), np.abs(ti)]
+    for t in range(n_limbs):
+        parts = [((m >> (bits * t)) & mask) * sg for m, sg in zip(mags, signs)]
+        pr, pi = (np.asarray(x, dtype=np.int64).astype(float) for x in parts)
+        for (mr, mi), ax in zip(fmats, axes):
+            pr, pi = _contract((pr, pi), (mr, mi), ax)
+        out_r = out_r + (np.rint(pr).astype(np.int64).astype(object) << (bits * t))
+        out_i = out_i + (np.rint(pi).astype(np.int64).astype(object) << (bits * t))
+    return out_r, out_i
+
+
 def exact_coefficients(re: np.ndarray, im: np.ndarray, dims: Sequence[int]) -> np.ndarray:
     """Integer coefficients ``c_alpha = Tr(tau_alpha (re + i im))``, flat in C order.
 
@@ -86,14 +121,16 @@ def exact_coefficients(re: np.ndarray, im: np.ndarray, dims: Sequence[int]) -> n
     dims = tuple(int(d) for d in dims)
     T = (_to_pairs(np.asarray(re, dtype=object), dims),
          _to_pairs(np.asarray(im, dtype=object), dims))
+    mats, axes = [], []
     for k, d in enumerate(dims):
         if _skip(d):
             continue
         br, bi, _ = integer_local_basis(d)
         # M[a, (i j)] = tau_a[j, i]
-        M = (br.transpose(0, 2, 1).reshape(d * d, d * d).astype(object),
-             bi.transpose(0, 2, 1).reshape(d * d, d * d).astype(object))
-        T = _contract(T, M, k)
+        mats.append((br.transpose(0, 2, 1).reshape(d * d, d * d),
+                     bi.transpose(0, 2, 1).reshape(d * d, d * d)))
+        axes.append(k)
+    T = _exact_transform(T[0], T[1], mats, axes)
     if np.any(T[1] != 0):
         raise ValueError("matrix is not exactly Hermitian: its coefficients are not all real")
     return T[0].reshape(-1)
@@ -123,13 +160,15 @@ def exact_matrix(c: np.ndarray, dims: Sequence[int]) -> tuple[np.ndarray, np.nda
     dims = tuple(int(d) for d in dims)
     T = (np.asarray(c, dtype=object).reshape([d * d for d in dims]),
          np.zeros([d * d for d in dims], dtype=object))
+    mats, axes = [], []
     for k, d in enumerate(dims):
         if _skip(d):
             continue
         br, bi, nrm = integer_local_basis(d)
-        w = np.array([lcm(*[int(x) for x in nrm]) // int(x) for x in nrm], dtype=object)
+        w = np.array([lcm(*[int(x) for x in nrm]) // int(x) for x in nrm], dtype=np.int64)
         # K[(i j), a] = tau_a[i, j] * (lcm / n_a)
-        K = (br.reshape(d * d, d * d).T.astype(object) * w[None, :],
-             bi.reshape(d * d, d * d).T.astype(object) * w[None, :])
-        T = _contract(T, K, k)
+        mats.append((br.reshape(d * d, d * d).T * w[None, :],
+                     bi.reshape(d * d, d * d).T * w[None, :]))
+        axes.append(k)
+    T = _exact_transform(T[0], T[1], mats, axes)
     return _from_pairs(T[0], dims), _from_pairs(T[1], dims), norm_denominator(dims)

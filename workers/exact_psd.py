@@ -64,11 +64,26 @@ def _check_hermitian(re: np.ndarray, im: np.ndarray) -> None:
 
 
 def _to_fmpz(M: np.ndarray) -> flint.fmpz_mat:
-    return flint.fmpz_mat(M.shape[0], M.shape[1], [int(v) for v in M.ravel()])
+    return flint.fmpz_mat(M.shape[0], M.shape[1], np.asarray(M).ravel().tolist())
 
 
 def _float_approx(M: np.ndarray, denom: int) -> np.ndarray:
+    if denom < 2 ** 1000:  # float(int) rounds correctly; only the approximation L needs it
+        return np.asarray(M, dtype=float) / float(denom)
     return np.array([v / denom for v in M.ravel()], dtype=float).reshape(M.shape)
+
+
+def _sum_of_squares_bound(values) -> Fraction:
+    """A rational number >= sum v^2 over exact integers v.
+
+    Each v converts to a float within a relative 2^-52 (flint truncates, python rounds), so
+    |v| <= |f| (1 + 2^-51); math.fsum rounds the exact sum of the rounded squares once; the
+    factor 1 + 2^-40 covers every one of these relative errors with room to spare.
+    """
+    floats = [float(v) for v in values]
+    if not all(abs(f) < 1e150 for f in floats):  # squares beyond float range: exact
+        return Fraction(sum(int(v) ** 2 for v in values))
+    return Fraction(math.fsum(f * f for f in floats)) * Fraction(2 ** 40 + 1, 2 ** 40)
 
 
 def _cholesky_with_shift(F: np.ndarray) -> tuple[np.ndarray, float]:
@@ -86,7 +101,8 @@ def _cholesky_with_shift(F: np.ndarray) -> tuple[np.ndarray, float]:
 
 
 def _residual_norm_bound(M: np.ndarray, denom: int, L: np.ndarray, c: float) -> Fraction:
-    """A rational upper bound on ``||M/denom - c 1 - L L^T||_F``, computed exactly."""
+    """A rational upper bound on ``||M/denom - c 1 - L L^T||_F``: E is computed exactly in
+    integers, the sum of its squares bounded from above (:func:`_sum_of_squares_bound`)."""
     peak = float(np.max(np.abs(L))) or 1.0
     q = MANTISSA_BITS - 3 - math.frexp(peak)[1]
     Li = np.rint(np.ldexp(L, q)).astype(np.int64)  # any L is fine: E is computed exactly
@@ -96,14 +112,17 @@ def _residual_norm_bound(M: np.ndarray, denom: int, L: np.ndarray, c: float) -> 
     a, b = (1 << (2 * q), 1) if q >= 0 else (1, 1 << (-2 * q))
     LLt = _to_fmpz(Li.astype(object))
     LLt = LLt * LLt.transpose()
-    ident = flint.fmpz_mat(n, n, [cn * denom * a if i == j else 0
-                                  for i in range(n) for j in range(n)])
-    E = _to_fmpz(M) * (a * cd) - ident - LLt * (denom * cd * b)
-    sumsq = sum(int(v) ** 2 for v in E.entries())
-    root = math.isqrt(sumsq)
-    if root * root < sumsq:
+    E = _to_fmpz(M) * (a * cd) - LLt * (denom * cd * b)
+    shift = cn * denom * a
+    for i in range(n):
+        E[i, i] = E[i, i] - shift
+    sumsq = _sum_of_squares_bound(E.entries())
+    num, den = sumsq.numerator, sumsq.denominator  # sqrt(num / den) <= ceil_sqrt(num den) / den
+    prod = num * den
+    root = math.isqrt(prod)
+    if root * root < prod:
         root += 1
-    return Fraction(root, denom * cd * a)
+    return Fraction(root, den * denom * cd * a)
 
 
 def min_eigenvalue_lower_bound(re: np.ndarray, im: np.ndarray, denom: int = 1) -> Fraction:

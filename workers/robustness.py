@@ -18,7 +18,7 @@ from .cone_vectors import cone_to_matrix
 from .conic import ConicProblem, compile_problem
 from .layout import build_layout
 from .leaf_spaces import embed_identity
-from .solver_admm import AdmmBackend, needs_admm
+from .solver_admm import AdmmBackend, fits_in_memory, needs_admm
 from .scenario import Scenario
 from .solvers import FALLBACK, RawSolution, SolverOptions, get_backend, resolve_solver
 from .validity import check_shape
@@ -58,7 +58,7 @@ class RobustnessResult:
     omega: np.ndarray | None = field(default=None, repr=False, compare=False)
     message: str = ""
     fallback_from: str = ""
-    raw: RawSolution | None = field(default=None, repr=False, compare=False)
+    raw: object = field(default=None, repr=False, compare=False)  # the back-end's solution
 
     @property
     def ok(self) -> bool:
@@ -115,22 +115,35 @@ class RobustnessProblem:
     ) -> RobustnessResult:
         """Solve for W; a failed solve is retried once with the other back-end if enabled."""
         w = self.coefficients(W)
-        if self.problem is None:
-            return self._admm_result(self.backend.solve_w(w), w, keep_certificate)
+        if self.problem is None:  # a matrix-free warm start: another structure's solve of W
+            start = self.backend.start_from([warm_start] if warm_start is not None else None)
+            res = self._admm_result(self.backend.solve_many_w(w[None], start)[0], w,
+                                    keep_certificate)
+            return self._admm_fallback(W, res, keep_certificate)
         warm = warm_start.raw if warm_start is not None and self.backend.warm_startable else None
         raw = self.backend.solve(self.problem.b(w), warm)
         return self._finish(W, raw, w, keep_certificate)
 
-    def solve_many(self, Ws, keep_certificate: bool = False, warm_start: bool = False
-                   ) -> list[RobustnessResult]:
-        """Solve for every W of ``Ws``; one batched call when the back-end has one (IPM),
-        so the per-iteration work is shared by the batch.
+    def solve_many(self, Ws, keep_certificate: bool = False, warm_start: bool = False,
+                   start: list[RobustnessResult] | None = None) -> list[RobustnessResult]:
+        """Solve for every W of ``Ws``; one batched call when the back-end has one (IPM,
+        ADMM), so the per-iteration work is shared by the batch.
 
         ``warm_start`` (warm-startable back-ends, i.e. SCS): each solve starts from the
         previous one's solution, which pays along a grid of nearby processes; the answers
-        then depend on the order of ``Ws`` at the solver's accuracy.
+        then depend on the order of ``Ws`` at the solver's accuracy.  ``start`` (ADMM):
+        results of another structure's matrix-free solve of the same processes, one per W,
+        to start each iteration from (the sufficient bound from the necessary one, N >= 4);
+        each answer then depends on its own process only.
         """
-        if self.problem is None or (warm_start and self.backend.warm_startable):
+        if self.problem is None:  # the matrix-free back-end batches too
+            ws = [self.coefficients(W) for W in Ws]
+            if not ws:
+                return []
+            sols = self.backend.solve_many_w(np.array(ws), self.backend.start_from(start))
+            return [self._admm_fallback(W, self._admm_result(sol, w, keep_certificate),
+                                        keep_certificate) for W, sol, w in zip(Ws, sols, ws)]
+        if warm_start and self.backend.warm_startable:
             out, prev = [], None
             for W in Ws:
                 prev = self.solve(W, warm_start=prev, keep_certificate=keep_certificate)
@@ -179,18 +192,31 @@ class RobustnessProblem:
             raw.message, "", raw,
         )
 
+    def _admm_fallback(self, W, result: RobustnessResult, keep: bool) -> RobustnessResult:
+        """A failed or capped matrix-free solve is redone by SCS when its matrix fits."""
+        if (result.status not in RETRY or not self.options.fallback
+                or not fits_in_memory(self.layout)):
+            return result
+        alt = get_problem(self.scenario, self.kind, self.method,
+                          replace(self.options, solver="SCS", fallback=False,
+                                  max_iters=SolverOptions().max_iters))
+        second = alt.solve(W, keep_certificate=keep)
+        if second.status in FAILED:
+            return result
+        return replace(second, fallback_from=f"ADMM:{result.status}")
+
     def _admm_result(self, sol, w: np.ndarray, keep: bool) -> RobustnessResult:
         """The result of a matrix-free solve (:mod:`workers.solver_admm`)."""
         nan = float("nan")
         s_coef = self.backend.witness_coefficients(sol)
         witness = from_coefficients(s_coef, self.scenario.subsystem_dims)
-        leaves, duals = self.backend.full_blocks(sol) if keep else (None, None)
+        leaves, duals, omega = self.backend.full_blocks(sol) if keep else (None, None, None)
         status = self.backend.status(sol)
         return RobustnessResult(
             self.kind, self.method, max(sol.pobj, 0.0), sol.dobj, sol.pobj, "ADMM", status,
             "converged" if sol.converged else status, sol.iterations, sol.res_pri,
             sol.res_dual, sol.gap, sol.solve_time, self.backend.setup_time,
-            float(s_coef @ w / self.scenario.dim), witness, leaves, duals, None, "", "", None,
+            float(s_coef @ w / self.scenario.dim), witness, leaves, duals, omega, "", "", sol,
         ) if np.isfinite(sol.pobj) else RobustnessResult(
             self.kind, self.method, nan, nan, nan, "ADMM", "failed", "nan iterate",
             sol.iterations, nan, nan, nan, sol.solve_time, 0.0, nan)

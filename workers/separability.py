@@ -24,6 +24,8 @@ from .robustness import RobustnessResult, get_problem
 from .scenario import Scenario
 from .shortcuts import try_comb_shortcut
 from .solvers import SolverOptions
+from .symmetric_robustness import get_symmetric_problem
+from .symmetry import find_local_symmetry, may_be_symmetric
 
 VERDICTS = ("separable", "nonseparable", "undecided")
 QUANTITIES = ("random", "generalized")
@@ -116,6 +118,41 @@ def decide(b: Bounds, tol: float) -> tuple[str, float, str]:
         f"+/- solver accuracy")
 
 
+def _symmetries(scenario: Scenario, Ws, todo: list[int], options: SolverOptions) -> dict:
+    """The local symmetry algebra of each process to solve (None where it has none)."""
+    if not options.symmetry or not todo:
+        return {}
+    dims = scenario.subsystem_dims
+    maybe = may_be_symmetric(dims, [Ws[i] for i in todo])
+    return {i: find_local_symmetry(dims, Ws[i]) for i, m in zip(todo, maybe) if m}
+
+
+def _solve_all(scenario: Scenario, kind: str, method: str, options: SolverOptions, Ws,
+               todo: list[int], keep: bool, warm_start: bool,
+               start: dict[int, RobustnessResult] | None = None,
+               syms: dict | None = None) -> dict[int, RobustnessResult]:
+    """Solve ``Ws[i]`` for i in todo: processes with a local symmetry (``syms``) in the
+    commutant of their symmetry group (one compiled problem per symmetry algebra), the rest
+    as one batch.  ``start`` (the necessary bound's results) starts a matrix-free
+    sufficient solve."""
+    groups: dict = {}
+    for i in todo:
+        sym = (syms or {}).get(i)
+        prob = get_symmetric_problem(scenario, kind, method, options, sym) if sym else None
+        groups.setdefault(prob, []).append(i)
+    out: dict[int, RobustnessResult] = {}
+    for prob, idx in groups.items():
+        batch = [Ws[i] for i in idx]
+        if prob is None:
+            res = get_problem(scenario, kind, method, options).solve_many(
+                batch, keep_certificate=keep, warm_start=warm_start,
+                start=[start[i] for i in idx] if start else None)
+        else:
+            res = prob.solve_many(batch, keep_certificate=keep, warm_start=warm_start)
+        out.update(zip(idx, res))
+    return out
+
+
 def analyse(
     scenario: Scenario,
     W: np.ndarray,
@@ -167,9 +204,13 @@ def analyse_many(
     known = [None if force_solve else try_comb_shortcut(scenario, W, tuple(quantities), methods)
              for W in Ws]
     todo = [i for i, k in enumerate(known) if k is None]
-    solved = {(kind, m): dict(zip(todo, get_problem(scenario, kind, m, options).solve_many(
-        [Ws[i] for i in todo], keep_certificate=keep_certificate, warm_start=warm_start)))
-        for kind in quantities for m in methods} if todo else {}
+    solved: dict = {}
+    syms = _symmetries(scenario, Ws, todo, options)
+    for kind in quantities if todo else ():
+        for m in methods:  # the sufficient bound starts where the necessary one ended
+            prev = solved.get((kind, "necessary")) if m == "sufficient" else None
+            solved[(kind, m)] = _solve_all(scenario, kind, m, options, Ws, todo,
+                                           keep_certificate, warm_start, prev, syms)
     out = []
     for i in range(len(Ws)):
         bounds = {}

@@ -31,7 +31,7 @@ class SolverOptions:
         ``"AUTO"`` (default: the built-in batched interior point ``"IPM"`` when the problem
         is small enough for it, see :func:`workers.solver_ipm.fits`, else ``"SCS"``),
         ``"SCS"`` (first-order), ``"CLARABEL"`` (interior point, real embedding), ``"IPM"``,
-        or ``"ADMM"`` (matrix-free, random robustness only; ``AUTO`` takes it when the conic
+        or ``"ADMM"`` (matrix-free splitting, many processes per call; ``AUTO`` takes it when the conic
         matrix would not fit in memory, see :mod:`workers.solver_admm`).
     eps_abs, eps_rel
         SCS's absolute/relative tolerances; Clarabel's ``tol_gap_abs/rel`` and ``tol_feas``.
@@ -44,6 +44,9 @@ class SolverOptions:
     tol
         Decision threshold: a robustness is called positive only above ``tol`` plus the
         solver's own accuracy (see :mod:`workers.separability`).
+    symmetry
+        Solve a process with a continuous local-unitary symmetry in the commutant of its
+        symmetry group (:mod:`workers.symmetry`; exact, and found and verified per process).
     """
 
     solver: str = "AUTO"
@@ -53,6 +56,7 @@ class SolverOptions:
     time_limit: float | None = None
     fallback: bool = True
     tol: float = 1e-6
+    symmetry: bool = True
 
     def __post_init__(self) -> None:
         if self.solver.upper() not in SOLVERS:

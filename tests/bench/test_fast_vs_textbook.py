@@ -4,7 +4,8 @@ Both sides formulate the robustness SDPs of Araújo et al., "Witnessing causal
 nonseparability", NJP 17, 102001 (2015) (bipartite), and the tripartite dynamical-order
 characterisation of Wechs, Abbott, Branciard, NJP 21, 013027 (2019) as written in workers/THEORY.md
 §4, but share no code: bench/textbook.py uses dense Hermitian variables with
-``cp.partial_trace``/``cp.kron``; workers/ uses per-pattern null spaces in the product basis.
+``cp.partial_trace``/``cp.kron``; bench/pauli_baseline.py Pauli coefficients with real-embedded
+PSD blocks; workers/ uses per-pattern null spaces in the product basis.
 Answers are compared on seeded random valid processes (no times are asserted).
 """
 
@@ -14,6 +15,7 @@ import cvxpy as cp
 import numpy as np
 import pytest
 
+from bench.pauli_baseline import pauli_random_robustness
 from bench.run import random_valid
 from bench.textbook import (_tripartite_constraints, textbook_generalized_robustness,
                             textbook_random_robustness, textbook_random_robustness_tripartite)
@@ -80,7 +82,7 @@ def test_tripartite_qubit_decomposition_meets_textbook_constraints():
     prob = get_problem(s, "random", "exact", SolverOptions())
     r = prob.solve(W, keep_certificate=True)
     assert r.upper_bound == pytest.approx(r.lower_bound, abs=1e-6)
-    leaves = dict(zip(prob.problem.structure.leaves, r.leaves))
+    leaves = dict(zip(prob.layout.structure.leaves, r.leaves))
     parts = {(o[0], o[1]): cp.Parameter((64, 64), complex=True, value=L)
              for o, L in leaves.items()}
     worst = max(float(np.max(np.abs(c.expr.value))) for c in _tripartite_constraints(parts, dims))
@@ -88,3 +90,28 @@ def test_tripartite_qubit_decomposition_meets_textbook_constraints():
     assert min(np.linalg.eigvalsh(L)[0] for L in r.leaves) > -1e-7
     noise = np.eye(64) / 8
     assert np.allclose(sum(r.leaves), W + r.upper_bound * noise, atol=1e-6)
+
+
+def test_pauli_baseline_agrees_tripartite_small():
+    """Tripartite with C's output trivial (32 x 32): the fast path's signed optimum equals
+    the Pauli-coefficient formulation's (both leave the noise weight free), for the exact
+    dynamical-order characterisation (Wechs, Abbott, Branciard 2019)."""
+    dims = (2, 2, 2, 2, 2, 1)
+    s = Scenario.from_dims(list(dims))
+    prob = get_problem(s, "random", "exact", SolverOptions())
+    for W in _samples(s, 21, 2):
+        fast = prob.solve(W).upper_bound
+        assert fast == pytest.approx(pauli_random_robustness(W, dims, 1e-8).value, abs=TOL)
+
+
+@pytest.mark.slow
+def test_pauli_baseline_agrees_tripartite_qubits():
+    """Three qubit parties, the benchmark's case (bench.run.tripartite_qubits): fast path at
+    eps 1e-6 and 1e-8 against the Pauli-coefficient formulation at SCS eps 1e-7."""
+    dims = (2,) * 6
+    s = Scenario.from_dims(list(dims))
+    W = _samples(s, 4, 1)[0]
+    ref = pauli_random_robustness(W, dims, 1e-7).value
+    for eps in (1e-6, 1e-8):
+        fast = get_problem(s, "random", "exact", SolverOptions(eps_abs=eps, eps_rel=eps))
+        assert fast.solve(W).upper_bound == pytest.approx(ref, abs=2e-5)

@@ -1,6 +1,6 @@
 """End to end on a real dask cluster: a scheduler and two workers started as separate
 processes on loopback with the ``dask scheduler`` / ``dask worker`` command lines (as
-dask-jobqueue tests its real-scheduler suite; STYLE.md)."""
+dask-jobqueue tests its real-scheduler suite)."""
 
 import os
 import socket
@@ -87,7 +87,7 @@ def test_cluster_results_identical_to_local(scheduler, tmp_path):
 def test_killed_worker_still_every_sample_once(scheduler, tmp_path, monkeypatch):
     """SIGKILL one worker process right after the first results arrive: its nanny restarts
     it, dask re-runs the lost tasks, and every sample is stored exactly once
-    (LIBRARY-FACTS.md, dask)."""
+    (dask's documented behaviour for a lost worker)."""
     addr, procs = scheduler
     spec = parse_spec({**SPEC, "compute": {**SPEC["compute"], "samples": 20}})
     nanny = psutil.Process(procs[1].pid)

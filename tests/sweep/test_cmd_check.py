@@ -154,3 +154,20 @@ def test_games_json(capsys):
     assert games["ocb_guess"]["causal_bound"] == pytest.approx(0.75)
     assert games["both_guess"]["causal_bound"] == pytest.approx(0.5)
     assert all({"name", "parties", "causal_bound"} <= set(g) for g in games.values())
+
+
+def test_check_announces_its_steps(ocb_file, capsys, monkeypatch):
+    """What a long check is doing, on stderr, step by step (shown for checks estimated over
+    10 s, such as the quantum switch; forced here), with the same answer on stdout."""
+    from sweep import check_steps
+    monkeypatch.setattr(check_steps, "SHOW_ABOVE_S", 0.0)
+    code, out, err = _run(capsys, "check", str(ocb_file), "--dims", "2,2,2,2", "--json")
+    assert code == 0 and json.loads(out)["verdict"] == "nonseparable"
+    steps = [line.removeprefix("orderless check: ") for line in err.splitlines()]
+    assert steps[0].startswith("D = 16, random/exact IPM, blocks 8 x 2; generalized/exact IPM")
+    assert steps[1].startswith("solving the random robustness (exact")
+    assert steps[2].startswith("random robustness: IPM optimal, ")
+    assert steps[3].startswith("solving the generalized robustness")
+    assert steps[-1] == "certifying the verdict in exact arithmetic ..."
+    code, out, err = _run(capsys, "check", str(ocb_file), "--dims", "2,2,2,2", "--quiet")
+    assert code == 0 and err == ""

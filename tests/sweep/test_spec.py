@@ -27,6 +27,8 @@ def _with(path, value, base=GOOD):
     return data
 
 
+STABLE_HASH = "83173c892da4c7fb7c35ce82df775f454d70d2d4e7fce458edd351885ace77fb"
+
 BAD_SPECS = [
     (_with(["surprise"], 1), "unknown key 'surprise'"),
     (_with(["compute", "sampels"], 3), "unknown key 'compute.sampels'"),
@@ -48,7 +50,20 @@ BAD_SPECS = [
     (_with(["compute", "game"], {"name": "lugano_game"}), "3-party game"),
     (_with(["grid"], [{"param": "colour", "values": [1]}]), "grid.0.param='colour'"),
     (_with(["grid"], [{"param": "u"}]), "give either values or all of start, stop, num"),
-    (_with(["grid"], [{"param": "u", "values": [0.5, 2.0]}]), "grid.0: u=2.0 is invalid"),
+    (_with(["grid"], [{"param": "weight", "values": [0.5, 2.0]}]),
+     "grid.0: weight=2.0 is invalid"),
+    (_with(["grid"], [{"param": "weight", "start": 0.5, "stop": 1.5, "num": 10 ** 9}]),
+     "grid.0: weight=1.5 is invalid"),
+    (_with(["grid"], [{"param": "rank", "start": 1, "stop": 4, "num": 7}]),
+     "gives steps of 0.5, expected integers"),
+    # a grid over a parameter the measure ignores would repeat one point (issue 12)
+    (_with(["family"], {"kind": "ensemble", "measure": "valid_direction"},
+           _with(["grid"], [{"param": "memory_dim", "values": [2, 3]}])),
+     "grid.0.param='memory_dim' is ignored by measure 'valid_direction'"),
+    (_with(["family", "u"], 0.5), "family.u=0.5 is ignored by measure 'wishart'"),
+    (_with(["grid"], [{"param": "d", "values": [2, 3]}],
+           {"family": {"kind": "named", "name": "quantum_switch"}}),
+     "would change the scenario"),
     (_with(["grid"], [{"param": "rank", "values": [1.5]}]), "expected integers"),
     ({"family": {"kind": "ensemble", "measure": "comb"}}, "scenario is missing"),
     (_with(["compute", "samples"], 4, ocb_grid([0.5])), "is deterministic; expected 1"),
@@ -92,11 +107,40 @@ def test_bad_files(write_spec, tmp_path, capsys):
     _one_line_error(capsys, ["run", write_spec(files), "-o", out], "missing.npy' does not exist")
     (tmp_path / "junk.h5").write_text("not hdf5")
     _one_line_error(capsys, ["run", write_spec(ocb_grid([1.0])), "-o",
-                             str(tmp_path / "junk.h5")], "is not a writable HDF5 file")
+                             str(tmp_path / "junk.h5")], "exists but is not an HDF5 file")
     _one_line_error(capsys, ["summary", str(tmp_path / "nothing.h5")], "does not exist")
     _one_line_error(capsys, ["run", write_spec(ocb_grid([1.0])), "-o", out, "--profile",
                              "big"], "no profile file found")
 
+
+def test_profile_file_used_as_spec(tmp_path, capsys):
+    """job_specs/profiles.yaml given as the spec: told it is a profile file, one line."""
+    from pathlib import Path
+    profiles = Path(__file__).resolve().parents[2] / "job_specs" / "profiles.yaml"
+    _one_line_error(capsys, ["run", str(profiles), "-o", str(tmp_path / "o.h5")],
+                    "is a profile file (top-level 'profiles'), not a job spec; use it as "
+                    f"`--profiles {profiles} --profile NAME`")
+    assert not (tmp_path / "o.h5").exists()
+
+
+def test_spec_hash_is_stable():
+    """Files written by earlier versions are resumed only if the hash of an unchanged spec
+    stays the same: this value was computed by schema 3 (before issue 12)."""
+    assert parse_spec(GOOD).spec_hash() == STABLE_HASH
+
+
+
+def test_added_family_field_enters_the_hash_only_when_set():
+    """`steps` (hs_volume, added after schema 3) at its default leaves the hash of older
+    specs alone; set, it distinguishes the walks."""
+    base = {"scenario": {"dims": [2, 2, 2, 2]},
+            "family": {"kind": "ensemble", "measure": "hs_volume"},
+            "compute": {"samples": 4}}
+    unset = parse_spec(base)
+    assert "steps" not in unset.science()["family"]
+    stepped = parse_spec({**base, "family": {**base["family"], "steps": 30}})
+    assert stepped.science()["family"]["steps"] == 30
+    assert unset.spec_hash() != stepped.spec_hash()
 
 def test_spec_hash_ignores_run_and_tracks_science():
     """The hash identifies results, so where they ran must not change it (design choice)."""
@@ -108,7 +152,7 @@ def test_spec_hash_ignores_run_and_tracks_science():
 
 
 def test_precedence_cli_over_profile_over_spec(tmp_path):
-    """STYLE.md: CLI > profile > spec > default, resolved in one function."""
+    """Precedence CLI > profile > spec > default, resolved in one function."""
     prof = tmp_path / "p.yaml"
     prof.write_text(yaml.safe_dump({"profiles": {"big": {"workers": 6, "samples_per_task": 3}}}))
     spec_run = RunSpec(workers=2, samples_per_task=5, progress=False)

@@ -27,7 +27,7 @@ def test_point_stats_counts_and_quantiles():
     rows["verdict"] = [b"separable", b"nonseparable", b"nonseparable", b"undecided", b"", b""]
     rows["status"] = [b"ok", b"ok", b"ok", b"failed", b"invalid", b"error"]
     r = np.array([0.0, 0.2, 0.4, np.nan, np.nan, np.nan])
-    rows["r_random"], rows["solve_time"] = r, [1, 2, 3, 4, np.nan, np.nan]
+    rows["r_random"], rows["solve_time_share"] = r, [1, 2, 3, 4, np.nan, np.nan]
     for f in ("r_generalized", "r_random_lo", "r_random_hi", "r_generalized_lo",
               "r_generalized_hi", "game_value"):
         rows[f] = np.nan
@@ -36,7 +36,7 @@ def test_point_stats_counts_and_quantiles():
     assert (st["failed"], st["invalid"], st["error"]) == (1, 1, 1)
     assert st["nonseparable_fraction"]["fraction"] == pytest.approx(2 / 3)
     assert st["r_random"]["q50"] == pytest.approx(np.quantile([0, 0.2, 0.4], 0.5))
-    assert st["solve_time"]["max"] == 4
+    assert st["solve_time_share"]["max"] == 4
 
 
 def test_ocb_white_noise_grid_changes_verdict_at_inverse_sqrt2(tmp_path):

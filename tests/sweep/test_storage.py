@@ -1,11 +1,12 @@
 """The HDF5 results file: self-describing attributes, resume, refusal of a different spec,
-and a driver killed with SIGKILL mid-sweep (LIBRARY-FACTS.md: an unflushed HDF5 file killed
+and a driver killed with SIGKILL mid-sweep (measured with h5py: an unflushed HDF5 file killed
 mid-write was unreadable; flushed after each chunk it was readable)."""
 
 import json
 import signal
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 import h5py
@@ -13,6 +14,7 @@ import numpy as np
 
 from sweep.cli import main
 from sweep.execute import run_sweep
+from sweep.progress import read_progress
 from sweep.spec import SCHEMA_VERSION, parse_spec
 from sweep.storage import FORMAT
 from tests.sweep.conftest import ocb_grid
@@ -26,7 +28,7 @@ def test_file_is_self_describing(tmp_path):
     run_sweep(spec, str(tmp_path / "a.h5"))
     with h5py.File(tmp_path / "a.h5", "r") as f:
         a = f.attrs
-        assert a["format"] == FORMAT and a["schema_version"] == SCHEMA_VERSION == 3
+        assert a["format"] == FORMAT and a["schema_version"] == SCHEMA_VERSION == 4
         assert a["spec_hash"] == spec.spec_hash() and a["root_seed"] == 0
         assert "ocb" in a["spec_yaml"] and json.loads(a["versions"])["numpy"] == np.__version__
         run = json.loads(a["runs"])[0]
@@ -78,14 +80,18 @@ def _spec_for_kill(write_spec):
     return write_spec(data)
 
 
-def _start_and_wait(spec, out, n_done):
+def _start_and_wait(spec, out, n_done, **popen):
+    """Start ``orderless run`` and return once its progress file counts ``n_done`` samples
+    computed (the progress file is how a running sweep is watched)."""
     proc = subprocess.Popen([sys.executable, "-m", "sweep.cli", "run", spec, "-o", out],
-                            cwd=REPO, stderr=subprocess.PIPE, stdout=subprocess.DEVNULL)
-    seen = b""
-    while b"/150" not in seen or int(seen.rsplit(b"/150", 1)[0].rsplit(b" ", 1)[-1]) < n_done:
-        chunk = proc.stderr.read1(256)
-        assert chunk, "driver ended before it could be stopped"
-        seen += chunk
+                            cwd=REPO, stderr=subprocess.PIPE, stdout=subprocess.DEVNULL,
+                            **popen)
+    deadline = time.monotonic() + 120
+    while (read_progress(out) or {}).get("pid") != proc.pid or \
+            read_progress(out).get("computed", 0) < n_done:
+        assert proc.poll() is None, "driver ended before it could be stopped"
+        assert time.monotonic() < deadline, "no progress within 120 s"
+        time.sleep(0.05)
     return proc
 
 
@@ -102,7 +108,7 @@ def test_ctrl_c_stops_cleanly_and_resumes(write_spec, tmp_path):
         assert sorted(f["samples"]["index"]) == list(range(150))
 
 
-def test_driver_killed_mid_sweep_then_resumed(write_spec, tmp_path):
+def test_driver_killed_mid_sweep_then_resumed(write_spec, tmp_path, capsys):
     """SIGKILL the driver after some chunks were written; the file opens, the rerun computes
     only the missing samples (the rows of the first run keep their worker pid), and every
     sample is present exactly once."""
@@ -113,13 +119,20 @@ def test_driver_killed_mid_sweep_then_resumed(write_spec, tmp_path):
     with h5py.File(out, "r") as f:
         before = f["samples"][: int(f.attrs["committed"])]
     assert 20 <= len(before) < 150
+    # before the rerun, readers show the run as dead (it still says "running" in the file)
+    assert main(["status", out, "--json"]) == 0
+    st = json.loads(capsys.readouterr().out)
+    assert st["state"] == "dead" and not st["alive"] and st["stored"] == len(before)
+    assert main(["summary", out]) == 0
+    assert "the last run died without recording its end" in capsys.readouterr().out
     assert main(["run", spec, "-o", out, "--no-progress"]) == 0
     with h5py.File(out, "r") as f:
         after = f["samples"][()]
         runs = json.loads(f.attrs["runs"])
     assert sorted(after["index"]) == list(range(150))
     assert after[: len(before)].tobytes() == before.tobytes()  # bitwise: NaN fields too
-    assert runs[0]["state"] == "running" and runs[1]["state"] == "complete"
+    assert runs[0]["state"] == "dead" and runs[0]["computed"] == len(before)
+    assert runs[1]["state"] == "complete"
     assert runs[1]["computed"] == 150 - len(before)
     pids = {w.split(b":")[-1] for w in after["worker"]}
     assert len(pids) == 2

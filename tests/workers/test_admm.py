@@ -66,15 +66,35 @@ def test_auto_takes_admm_only_above_the_size_limit(monkeypatch):
     s = Scenario.from_dims([2, 2, 2, 2])
     assert not solver_admm.needs_admm(build_layout(s, "exact"), "random")
     monkeypatch.setattr(solver_admm, "AUTO_NNZ", 10)
-    assert solver_admm.needs_admm(build_layout(s, "exact"), "random")
-    assert not solver_admm.needs_admm(build_layout(s, "exact"), "generalized")
-    assert RobustnessProblem(s, "random", "exact").options.solver == "ADMM"
-    assert RobustnessProblem(s, "generalized", "exact").options.solver == "IPM"  # conic
+    for kind in ("random", "generalized"):
+        assert solver_admm.needs_admm(build_layout(s, "exact"), kind)
+        assert RobustnessProblem(s, kind, "exact").options.solver == "ADMM"
 
 
-def test_generalized_is_refused():
-    with pytest.raises(ValueError, match="random robustness only"):
-        RobustnessProblem(ocb_process().scenario, "generalized", "exact", ADMM)
+def test_generalized_robustness_and_certificate():
+    """R_g(OCB) = 3 - 2 sqrt2 (workers/THEORY.md §5) from the splitting solver with Omega as
+    a block; its witness is certified exactly and bounds R_r from below."""
+    p = ocb_process()
+    opts = SolverOptions(solver="ADMM", eps_abs=1e-7, eps_rel=1e-7, symmetry=False)
+    res = analyse(p.scenario, p.matrix, ("generalized",), "exact", opts, keep_certificate=True)
+    r = res.bounds["generalized"].upper_from
+    assert r.solver == "ADMM" and r.status == "optimal"
+    assert r.value == pytest.approx(3 - 2 * np.sqrt(2), abs=1e-6)
+    assert r.omega is not None and np.linalg.eigvalsh(r.omega)[0] > -1e-9
+    cv = certify(p.scenario, p.matrix, res)
+    assert cv.certified and cv.verdict == "nonseparable"
+
+
+def test_batch_results_do_not_depend_on_the_batch(rng):
+    """solve_many over several processes equals one solve per process, bit for bit."""
+    s = Scenario.from_dims([2, 2, 2, 2])
+    Ws = [random_valid_process(s, rng, 1.0) for _ in range(4)]
+    prob = RobustnessProblem(s, "random", "exact", ADMM)
+    many = prob.solve_many(Ws)
+    for W, r in zip(Ws, many):
+        one = prob.solve(W)
+        assert (one.upper_bound, one.lower_bound, one.iterations) == \
+            (r.upper_bound, r.lower_bound, r.iterations)
 
 
 def test_estimated_nnz_tracks_the_compiled_matrix():

@@ -91,13 +91,16 @@ def test_breakdown_is_a_status_and_spares_the_batch(rng):
 
 
 def test_auto_takes_ipm_only_where_it_fits():
-    """AUTO resolves to IPM for bipartite qubits (both robustness measures) and to SCS for
-    tripartite qubits, whose dense Schur complement (about 3000 variables) the IPM
-    refuses."""
+    """AUTO resolves to IPM for bipartite qubits (both robustness measures); tripartite
+    qubits, whose dense Schur complement (about 3000 variables) the IPM refuses, go to the
+    matrix-free solver (random robustness, 32 x 32 blocks) or SCS."""
     small = get_problem(Scenario.from_dims([2] * 4), "random", "exact", SolverOptions())
     assert small.options.solver == "IPM" and fits(small.problem)
     big = RobustnessProblem(Scenario.from_dims([2] * 6), "random", "exact", SolverOptions())
-    assert big.options.solver == "SCS" and not fits(big.problem, auto=False)
+    assert big.options.solver == "ADMM"
+    big = RobustnessProblem(Scenario.from_dims([2] * 6), "random", "exact",
+                            SolverOptions(solver="SCS"))
+    assert not fits(big.problem, auto=False)
     with pytest.raises(ValueError, match="solver='IPM' takes problems with at most"):
         RobustnessProblem(Scenario.from_dims([2] * 6), "random", "exact", IPM)
     gen = get_problem(Scenario.from_dims([2] * 4), "generalized", "exact", SolverOptions())

@@ -209,7 +209,7 @@ def test_white_noise_in_unequal_dimensions() -> None:
 
 
 def test_bad_input_messages() -> None:
-    """Errors name the argument and echo the value (STYLE.md tone)."""
+    """Errors name the argument and echo the value."""
     game = get_game("ocb_guess")
     with pytest.raises(ValueError, match=r"multiply to 16 but W is 8x8"):
         seesaw(np.eye(8), QUBITS, game)
