@@ -33,8 +33,8 @@ class SolverOptions:
         ``"AUTO"`` (default: the built-in batched interior point ``"IPM"`` when the problem
         is small enough for it, see :func:`workers.sdp.solver_ipm.fits`, else ``"SCS"``),
         ``"SCS"`` (first-order), ``"CLARABEL"`` (interior point, real embedding), ``"IPM"``,
-        or ``"ADMM"`` (matrix-free splitting, many processes per call; ``AUTO`` takes it when the conic
-        matrix would not fit in memory, see :mod:`workers.sdp.solver_admm`).
+        or ``"ADMM"`` (matrix-free splitting, many processes per call; ``AUTO`` takes it when
+        the conic matrix would not fit in memory, see :mod:`workers.sdp.solver_admm`).
     eps_abs, eps_rel
         SCS's absolute/relative tolerances; Clarabel's ``tol_gap_abs/rel`` and ``tol_feas``.
     max_iters
