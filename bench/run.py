@@ -19,35 +19,20 @@ import argparse
 import os
 import sys
 import time
-from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
 
+from bench.sweep_scaling import sweep_scaling
+from bench.table import Row, format_table, peak_mib
+
 THREAD_VARS = ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS")
-
-
-@dataclass(frozen=True)
-class Row:
-    """One line of the benchmark table."""
-
-    target: str
-    instances: int
-    fast_median: float
-    base_median: float
-    max_diff: float
-    peak_mib: float
-    note: str = ""
-
-    @property
-    def ratio(self) -> float:
-        return self.base_median / self.fast_median if self.fast_median > 0 else float("nan")
 
 
 def random_valid(scenario, rng: np.random.Generator, u: float) -> np.ndarray:
     """``1° + u t_max H``: H a Gaussian Hermitian projected onto the traceless valid subspace,
     t_max the largest step keeping the operator PSD (u in (0, 1])."""
-    from workers.validity import project_valid, white_noise
+    from workers.operators.validity import project_valid, white_noise
 
     D = scenario.dim
     G = rng.standard_normal((D, D)) + 1j * rng.standard_normal((D, D))
@@ -72,8 +57,8 @@ def _compare(name: str, scenario, kind: str, method: str, n: int, eps: float,
     per sample is the batch's wall time over n (throughput per core; the note gives the
     median of one-at-a-time solves); otherwise it is the median of the single solves.
     """
-    from workers.robustness import get_problem
-    from workers.solvers import SolverOptions
+    from workers.analysis.robustness import get_problem
+    from workers.sdp.solvers import SolverOptions
 
     rng = np.random.default_rng(seed)
     Ws = [random_valid(scenario, rng, u) for _ in range(n)]
@@ -90,18 +75,12 @@ def _compare(name: str, scenario, kind: str, method: str, n: int, eps: float,
     note = f"{prob.options.solver}, {how}; setup {t_setup:.2f} s, eps {eps:g}, {method}"
     return Row(name, n, t_fast,
                float(np.median([b[0] for b in base])) if base else float("nan"), diff,
-               _peak_mib(), note)
-
-
-def _peak_mib() -> float:
-    import resource
-
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+               peak_mib(), note)
 
 
 def bipartite(kind: str, n: int) -> Row:
     from bench import textbook
-    from workers.scenario import Scenario
+    from workers.operators.scenario import Scenario
 
     s = Scenario.from_dims([2, 2, 2, 2])
     fn = (textbook.textbook_random_robustness if kind == "random"
@@ -113,7 +92,7 @@ def bipartite(kind: str, n: int) -> Row:
 def tripartite_small(n: int) -> Row:
     """Tripartite with the last two outputs trivial (16x16): small enough for the baseline."""
     from bench import textbook
-    from workers.scenario import Scenario
+    from workers.operators.scenario import Scenario
 
     dims = (2, 2, 2, 1, 2, 1)
     s = Scenario.from_dims(dims)
@@ -128,9 +107,9 @@ def tripartite_qubits(n: int, eps: float, baseline: bool = True) -> Row:
     process).  "max diff" compares the signed optima (both sides leave the noise weight
     free), so separable samples are compared by how far inside the set they lie."""
     from bench.pauli_baseline import pauli_random_robustness
-    from workers.robustness import get_problem
-    from workers.scenario import Scenario
-    from workers.solvers import SolverOptions
+    from workers.analysis.robustness import get_problem
+    from workers.operators.scenario import Scenario
+    from workers.sdp.solvers import SolverOptions
 
     s = Scenario.from_dims([2] * 6)
     rng = np.random.default_rng(4)
@@ -156,7 +135,7 @@ def tripartite_qubits(n: int, eps: float, baseline: bool = True) -> Row:
                  f"{np.median([b[1].solve_time for b in base]):.1f} s")
     return Row(f"tripartite-qubits eps={eps:g}", n, t_fast,
                float(np.median([b[0] for b in base])) if base else float("nan"), diff,
-               _peak_mib(), note)
+               peak_mib(), note)
 
 
 def switch_check(repeats: int = 1) -> Row:
@@ -169,7 +148,7 @@ def switch_check(repeats: int = 1) -> Row:
     import subprocess
     import tempfile
 
-    from workers.families import quantum_switch
+    from workers.operators.families import quantum_switch
 
     with tempfile.TemporaryDirectory() as tmp:
         path = f"{tmp}/switch.npy"
@@ -206,9 +185,9 @@ def _has_taskset() -> bool:
 
 def four_party(dims: tuple[int, ...], n: int, eps: float = 1e-8) -> Row:
     """Necessary and sufficient bounds per sample (both solves counted in the time)."""
-    from workers.robustness import get_problem
-    from workers.scenario import Scenario
-    from workers.solvers import SolverOptions
+    from workers.analysis.robustness import get_problem
+    from workers.operators.scenario import Scenario
+    from workers.sdp.solvers import SolverOptions
 
     s = Scenario.from_dims(list(dims))
     rng = np.random.default_rng(5)
@@ -227,7 +206,7 @@ def four_party(dims: tuple[int, ...], n: int, eps: float = 1e-8) -> Row:
     blocks = [p.layout.n_blocks for p in probs]
     solvers = "/".join(p.options.solver for p in probs)
     return Row(f"four-party {','.join(map(str, dims))}", n, float(np.median(times)),
-               float("nan"), float(max(gaps)), _peak_mib(),
+               float("nan"), float(max(gaps)), peak_mib(),
                f"{solvers}, eps {eps:g}, necessary+sufficient, blocks {blocks} (of 24), "
                f"largest {max(max(p.layout.block_sizes) for p in probs)}; "
                "max diff = largest sufficient-necessary gap")
@@ -237,10 +216,10 @@ def four_qubits(n: int, eps: float = 1e-5) -> Row:
     """Four qubit parties (256 x 256): necessary and sufficient bounds per sample with the
     matrix-free splitting solver (AUTO's choice here), the sufficient solve started from the
     necessary one's final iterate; the note gives the conic matrix SCS would need."""
-    from workers.layout import build_layout
-    from workers.robustness import get_problem
-    from workers.scenario import Scenario
-    from workers.solvers import SolverOptions
+    from workers.structures.layout import build_layout
+    from workers.analysis.robustness import get_problem
+    from workers.operators.scenario import Scenario
+    from workers.sdp.solvers import SolverOptions
 
     s = Scenario.from_dims([2] * 8)
     nnz = max(build_layout(s, m).estimated_nnz() for m in ("necessary", "sufficient"))
@@ -260,7 +239,7 @@ def four_qubits(n: int, eps: float = 1e-5) -> Row:
                      f"{up.iterations} iterations ({lo.solve_time:.0f} s + "
                      f"{up.solve_time:.0f} s), {lo.status}/{up.status}")
     return Row("four-party qubits", n, float(np.median(times)), float("nan"),
-               float(max(gaps)), _peak_mib(),
+               float(max(gaps)), peak_mib(),
                f"{nec.options.solver}, eps {eps:g}, blocks {nec.layout.block_sizes[0]}"
                f" x {nec.layout.n_blocks}; " + "; ".join(notes) + f"; the conic matrix "
                f"would hold ~{nnz / 1e6:.0f}M nonzeros (~{nnz * 12 / 2**30:.1f} GiB before SCS "
@@ -273,9 +252,9 @@ def white_noise_grid(n: int, eps: float = 1e-6) -> Row:
     the grid (fast) against cold solves (baseline).  The OCB grid of the same length is in the
     note: a 16 x 16 solve is ~50 iterations, checked by SCS every 25, so warm starts cannot
     pay there; the batched IPM (no warm start) is its fast path."""
-    from workers.families import lugano_process, ocb_process, white_noise_mixture
-    from workers.robustness import RobustnessProblem, get_problem
-    from workers.solvers import SolverOptions
+    from workers.operators.families import lugano_process, ocb_process, white_noise_mixture
+    from workers.analysis.robustness import RobustnessProblem, get_problem
+    from workers.sdp.solvers import SolverOptions
 
     P = lugano_process()
     opts = SolverOptions(solver="SCS", eps_abs=eps, eps_rel=eps)
@@ -293,77 +272,10 @@ def white_noise_grid(n: int, eps: float = 1e-6) -> Row:
                                      ("IPM batch", "IPM", False)):
         prob = get_problem(O.scenario, "random", "exact", SolverOptions(solver=solver))
         ocb[label] = _timed(lambda: prob.solve_many(Wo, warm_start=warm_flag))[0] / n
-    return Row("white-noise grid (warm vs cold)", n, t_warm / n, t_cold / n, diff, _peak_mib(),
+    return Row("white-noise grid (warm vs cold)", n, t_warm / n, t_cold / n, diff, peak_mib(),
                f"Lugano, eps {eps:g}, SCS iterations {iters[0]} cold vs {iters[1]} warm; "
                f"R_r(p=1) = {cold[-1].value:.6f}; OCB grid per point: " +
                ", ".join(f"{k} {v * 1e3:.1f} ms" for k, v in ocb.items()))
-
-
-def _plain_half(args: tuple[str, list[int]]) -> float:
-    """Seconds to compute some samples in this process, without dask or storage."""
-    from sweep.task import run_samples, warm_up
-
-    spec_json, indices = args
-    warm_up(spec_json)
-    t0 = time.perf_counter()
-    for k in range(0, len(indices), 13):
-        run_samples(spec_json, indices[k:k + 13])
-    return time.perf_counter() - t0
-
-
-def _machine_ceiling(spec_json: str, n: int, repeats: int = 3) -> list[float]:
-    """What two plain processes get on this machine: the two halves of the sweep computed one
-    after the other, against both at once (no dask, no storage); 2.0 on ideal hardware.
-    One ratio per repeat, sorted."""
-    import multiprocessing as mp
-
-    halves = [(spec_json, list(range(0, n, 2))), (spec_json, list(range(1, n, 2)))]
-    ctx = mp.get_context("spawn")
-    out = []
-    with ctx.Pool(1) as one, ctx.Pool(2) as two:
-        for _ in range(repeats):
-            out.append(sum(one.map(_plain_half, halves)) / max(two.map(_plain_half, halves)))
-    return sorted(out)
-
-
-def sweep_scaling(n: int, repeats: int = 11) -> Row:
-    """A bipartite sweep of ``n`` samples (random and generalised robustness, certified):
-    2 workers against 1 (fast = 2 workers), compared on the compute phase (first task
-    submitted to last result stored; the cluster's start-up and shut-down are reported
-    apart), and the scheduling + storage overhead of 1 worker: compute phase minus the
-    tasks' own time, over the tasks' own time.  Medians of ``repeats`` runs (this 2-core
-    machine is noisy; the range is in the note)."""
-    import tempfile
-
-    from sweep.execute import run_sweep
-    from sweep.spec import parse_spec
-    from sweep.spec_run import RunSpec
-
-    spec = parse_spec({"scenario": {"dims": [2, 2, 2, 2]},
-                       "family": {"kind": "ensemble", "measure": "valid_direction"},
-                       "compute": {"samples": n, "seed": 7, "eps": 1e-8,
-                                   "robustness": ["random", "generalized"]}})
-    ones, twos = [], []
-    with tempfile.TemporaryDirectory() as tmp:
-        for k in range(repeats):
-            for label, runs, w in (("1", ones, 1), ("2", twos, 2)):
-                run = RunSpec(cluster="local", workers=w, progress=False)
-                runs.append(run_sweep(spec, f"{tmp}/{label}-{k}.h5", run))
-    speed = sorted(a.compute / b.compute for a, b in zip(ones, twos))
-    over = sorted((a.compute - a.task_seconds) / a.task_seconds for a in ones)
-    one, two = (sorted(r, key=lambda o: o.compute)[len(r) // 2] for r in (ones, twos))
-    mid = len(speed) // 2
-    base = one.compute / n  # the row's ratio is the median speed-up of the paired runs
-    ceiling = _machine_ceiling(spec.model_dump_json(), n, 3 if repeats > 3 else 1)
-    return Row("sweep 2 workers vs 1", n, base / speed[mid], base, float("nan"),
-               _peak_mib(), f"speed-up {speed[mid]:.2f}x on the compute phase (median of "
-               f"{repeats}, range {speed[0]:.2f}-{speed[-1]:.2f}; {one.compute:.1f} s vs "
-               f"{two.compute:.1f} s; end to end with cluster start-up {one.elapsed:.1f} s vs "
-               f"{two.elapsed:.1f} s); two plain processes without dask get "
-               f"{ceiling[len(ceiling) // 2]:.2f}x on this machine (median of {len(ceiling)}, "
-               f"range {ceiling[0]:.2f}-{ceiling[-1]:.2f}); 1-worker scheduling + storage overhead "
-               f"{100 * over[mid]:.1f}% (range {100 * over[0]:.1f}-{100 * over[-1]:.1f}%) of "
-               f"the tasks' {one.task_seconds:.1f} s (storage {one.storage:.2f} s)")
 
 
 TARGETS: dict[str, Callable[[bool], Row]] = {
@@ -388,16 +300,6 @@ def _run_one(name: str, quick: bool) -> Row:
     for var in THREAD_VARS:
         os.environ[var] = "1"
     return TARGETS[name](quick)
-
-
-def format_table(rows: list[Row]) -> str:
-    head = ("| target | instances | fast s/sample | baseline s/sample | ratio | max diff | "
-            "peak MiB | note |\n|---|---|---|---|---|---|---|---|")
-    lines = [head]
-    for r in rows:
-        lines.append(f"| {r.target} | {r.instances} | {r.fast_median:.4g} | {r.base_median:.4g} "
-                     f"| {r.ratio:.3g} | {r.max_diff:.2e} | {r.peak_mib:.0f} | {r.note} |")
-    return "\n".join(lines)
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from workers.scenario import Scenario
-from workers.validity import project_valid, white_noise
+from workers.operators.scenario import Scenario
+from workers.operators.validity import project_valid, white_noise
 
 
 @pytest.fixture
@@ -17,7 +17,7 @@ def rng() -> np.random.Generator:
 def random_valid_process(scenario: Scenario, rng: np.random.Generator, strength: float = 0.9):
     """A random valid W: a random Hermitian direction projected onto the valid subspace,
     made traceless and added to 1° with a weight ``strength`` of the distance to the PSD
-    boundary (test helper; the documented ensembles live in workers.ensembles)."""
+    boundary (test helper; the documented ensembles live in workers.operators.ensembles)."""
     D = scenario.dim
     G = rng.standard_normal((D, D)) + 1j * rng.standard_normal((D, D))
     H = project_valid(scenario, G + G.conj().T)

@@ -25,7 +25,7 @@ def test_ci_runs_the_readme_test_command():
 
 def test_spec_reference_is_current():
     """The README's spec reference is the one generated from the pydantic model."""
-    from sweep.spec_doc import markdown_reference
+    from sweep.spec.doc import markdown_reference
 
     assert markdown_reference().strip() in (ROOT / "README.md").read_text()
 

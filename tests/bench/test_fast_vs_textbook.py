@@ -19,10 +19,10 @@ from bench.pauli_baseline import pauli_random_robustness
 from bench.run import random_valid
 from bench.textbook import (_tripartite_constraints, textbook_generalized_robustness,
                             textbook_random_robustness, textbook_random_robustness_tripartite)
-from workers.families import ocb_process
-from workers.robustness import get_problem
-from workers.scenario import Scenario
-from workers.solvers import SolverOptions
+from workers.operators.families import ocb_process
+from workers.analysis.robustness import get_problem
+from workers.operators.scenario import Scenario
+from workers.sdp.solvers import SolverOptions
 
 TOL = 2e-6  # both solvers run SCS at eps 1e-8; values are robustnesses of order 1e-2
 

@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 
 from bench.pauli_baseline import _bipartite_rules, pauli_random_robustness, pauli_strings
-from workers.families import ocb_process, random_comb
-from workers.scenario import Scenario
+from workers.operators.families import ocb_process, random_comb
+from workers.operators.scenario import Scenario
 
 
 def test_strings_are_the_pauli_basis():

@@ -6,7 +6,7 @@ import json
 
 import numpy as np
 
-from sweep.storage import read_results
+from sweep.storage.results import read_results
 
 # Per-run facts rather than results: wall time, which run and which worker solved a sample.
 NOT_COMPARED = ("solve_time", "solve_time_share", "run", "worker")

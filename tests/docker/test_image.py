@@ -18,7 +18,8 @@ ARCHIVE = "orderless.docker.tar"  # the name README's save command writes, the .
 def test_orderless_runs_as_non_root_with_one_blas_thread(image, podman_env):
     """The default command is `orderless --help`; the user is the image's own, not root."""
     assert "usage: orderless" in podman_run(podman_env, [image])
-    probe = ("import os, sweep.cli, workers.exact_psd; print(os.getuid(), os.getgid(), "
+    probe = ("import os, sweep.cli, workers.certificates.exact_psd; "
+             "print(os.getuid(), os.getgid(), "
              "[os.environ[k] for k in ('OMP_NUM_THREADS', 'MKL_NUM_THREADS', "
              "'OPENBLAS_NUM_THREADS')])")
     out = podman_run(podman_env, [image, "python3", "-c", probe]).split(maxsplit=2)

@@ -9,8 +9,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from workers.ensembles import hs_volume
-from workers.scenario import Scenario
+from workers.operators.ensembles import hs_volume
+from workers.operators.scenario import Scenario
 
 N_SAMPLES = 2000
 TEST_STEPS = 24                        # billiard steps per sample in the default-suite tests (mixed by ~12)

@@ -14,12 +14,12 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from workers.causal_bound import causal_bound, causal_tables
-from workers.families import lugano_process, ocb_process, quantum_switch
-from workers.games import Game, get_game
-from workers.seesaw import process_value, seesaw
-from workers.separability import analyse
-from workers.solvers import SolverOptions
+from workers.games.causal_bound import causal_bound, causal_tables
+from workers.operators.families import lugano_process, ocb_process, quantum_switch
+from workers.games.causal_games import Game, get_game
+from workers.games.seesaw import process_value, seesaw
+from workers.analysis.separability import analyse
+from workers.sdp.solvers import SolverOptions
 
 from .hs_samples import TWO_QUBIT_STATES, ginibre_states, partial_transpose, samples
 

@@ -1,0 +1,1 @@
+"""Reports: per-point statistics and figures."""

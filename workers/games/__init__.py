@@ -1,0 +1,2 @@
+"""Causal games and causal inequalities: payoff tables, causal bounds by LP and see-saw values
+(workers/THEORY.md §7)."""
