@@ -32,7 +32,7 @@ from workers.operators.scenario import Scenario
 
 from sweep.errors import UserError
 from sweep.spec.model import Spec
-from sweep.spec.checks import resolve_scenario
+from sweep.spec.checks import MEASURE_PARAMS, resolve_scenario
 
 
 def sample_seed(root: int, index: int) -> np.random.SeedSequence:
@@ -213,11 +213,8 @@ class Plan:
         elif fam.kind == "files":
             W = self.files[rep]
         else:
-            params = {"valid_direction": {"u": fam.u}, "wishart": {"rank": fam.rank},
-                      "hs_volume": {"steps": fam.steps},
-                      "comb": {"order": fam.order, "memory_dim": fam.memory_dim},
-                      "comb_mixture": {"n_combs": fam.n_combs, "memory_dim": fam.memory_dim}}
-            drawn = get_sampler(fam.measure)(self.scenario, rng, **params[fam.measure])
+            params = {name: getattr(fam, name) for name in MEASURE_PARAMS[fam.measure]}
+            drawn = get_sampler(fam.measure)(self.scenario, rng, **params)
             W, aux = drawn.matrix, drawn.aux
         if fam.weight != 1.0:
             W = white_noise_mixture(self.scenario, W, fam.weight)
