@@ -30,6 +30,13 @@ from .splitting_data import SplitProblem
 
 CHECK_EVERY = 10
 REBALANCE_EVERY = 50
+# up to this side the projection is one product V max(L, 0) V^H per matrix (one batched
+# call is cheaper than grouping by eigenvector count: 59 vs 103 us for six 32 x 32)
+FULL_PRODUCT_MAX = 64
+# Anderson memory: 20 (three qubit parties: memory 10 took 540 iterations where 20 took
+# 300); for blocks of side >= 128 memory 10 (four qubit parties: 5-8% fewer iterations
+# than 20 on three seeded samples, and each step reads half the buffer)
+MEMORY, LARGE_MEMORY, LARGE_SIDE = 20, 10, 128
 
 
 @dataclass(frozen=True)
@@ -46,9 +53,10 @@ class SplitSolution(BatchFigures):
 def cone(prob: SplitProblem, s: np.ndarray) -> np.ndarray:
     """Pi_K(s): every block's matrix with its negative eigenvalues set to zero.
 
-    Each matrix's projection is formed from its side with fewer eigenvectors, ``M - V_-
-    L_- V_-^H`` or ``V_+ L_+ V_+^H`` (eigenvalues come sorted, so both are column ranges);
-    matrices are grouped by that count, so each one's arithmetic is its own.
+    Small matrices (side <= FULL_PRODUCT_MAX) are rebuilt as ``V max(L, 0) V^H``; larger
+    ones from their side with fewer eigenvectors, ``M - V_- L_- V_-^H`` or ``V_+ L_+
+    V_+^H`` (eigenvalues come sorted, so both are column ranges), grouped by that count.
+    Either way each matrix's arithmetic is its own.
     """
     Y = np.empty_like(s)
     D = prob.layout.scenario.dim
@@ -57,6 +65,10 @@ def cone(prob: SplitProblem, s: np.ndarray) -> np.ndarray:
         n = tr.n
         M = tr.to_matrices(s[:, cols].reshape(-1, n * n)) * (n / D)
         lam, V = np.linalg.eigh(M)
+        if n <= FULL_PRODUCT_MAX:
+            P = np.matmul(V * np.maximum(lam, 0.0)[:, None, :], np.swapaxes(V, 1, 2).conj())
+            Y[:, cols] = (tr.to_coefficients(P) * (D / n)).reshape(B, -1)
+            continue
         neg = np.sum(lam < 0, axis=1)
         P = np.empty_like(M)
         for k in np.unique(neg):
@@ -121,13 +133,18 @@ class _Anderson:
     def step(self, s: np.ndarray, g: np.ndarray) -> np.ndarray:
         rows = np.flatnonzero(self.has_prev)
         if len(rows):
-            k = self.count[rows] % self.m
-            dg = g[rows] - self.prev_g[rows]
-            self.dG[rows, k] = dg
-            self.dSG[rows, k] = s[rows] - self.prev_s[rows] + dg
-            col = np.matmul(self.dG[rows], dg[:, :, None])[:, :, 0]  # (r, m)
-            self.gram[rows, k, :] = col
-            self.gram[rows, :, k] = col
+            # the Gram column from the whole buffer as it is (a view, no copy of the ring
+            # buffers), then the slot being replaced gets dg . dg; rows without a previous
+            # point compute and discard theirs, so every row's arithmetic is the same
+            dg = g - self.prev_g
+            k = self.count % self.m
+            col = np.matmul(self.dG, dg[:, :, None])[:, :, 0]  # (B, m)
+            col[np.arange(len(s)), k] = np.sum(dg * dg, axis=1)
+            k = k[rows]
+            self.dG[rows, k] = dg[rows]
+            self.dSG[rows, k] = s[rows] - self.prev_s[rows] + dg[rows]
+            self.gram[rows, k, :] = col[rows]
+            self.gram[rows, :, k] = col[rows]
             self.count[rows] += 1
         self.prev_s[:], self.prev_g[:] = s, g
         self.has_prev[:] = True
@@ -174,9 +191,12 @@ def _rebalance(it: int, rel_p: np.ndarray, rel_d: np.ndarray, ratio: np.ndarray)
 
 def solve_batch(prob: SplitProblem, w: np.ndarray, eps_abs: float = 1e-6,
                 eps_rel: float = 1e-6, max_iters: int = 20_000,
-                time_limit: float | None = None, memory: int = 20,
+                time_limit: float | None = None, memory: int | None = None,
                 start: tuple[np.ndarray, np.ndarray] | None = None) -> SplitSolution:
     """Solve for every row of ``w`` (the processes' coefficient vectors, shape (B, D^2)).
+
+    ``memory`` (Anderson) defaults to MEMORY, or LARGE_MEMORY when a block's side is at
+    least LARGE_SIDE.
 
     ``start`` = (state, rho) of a solve of a problem with the same blocks (another causal
     structure for the same processes) starts the iteration there instead of at the affine
@@ -197,6 +217,8 @@ def solve_batch(prob: SplitProblem, w: np.ndarray, eps_abs: float = 1e-6,
         rho = np.ones(nb)
         s, _ = affine(prob, np.zeros((nb, prob.size)), w, rho)
     final_s, final_rho = np.zeros((nb, prob.size)), np.ones(nb)
+    if memory is None:
+        memory = LARGE_MEMORY if max(b.n for b in prob.blocks) >= LARGE_SIDE else MEMORY
     aa = _Anderson(memory, nb, prob.size)
     best = np.full(nb, np.inf)
     best_s = s.copy()
