@@ -50,6 +50,24 @@ class SplitSolution(BatchFigures):
     rho: np.ndarray
 
 
+def _rebuild_from_smaller_side(M: np.ndarray, lam: np.ndarray, V: np.ndarray) -> np.ndarray:
+    """``M - V_- L_- V_-^H`` or ``V_+ L_+ V_+^H`` per matrix, whichever uses fewer
+    eigenvectors; matrices are grouped by their count of negative eigenvalues."""
+    n = M.shape[-1]
+    neg = np.sum(lam < 0, axis=1)
+    P = np.empty_like(M)
+    for k in np.unique(neg):
+        rows = np.flatnonzero(neg == k)
+        if k <= n // 2:
+            Vk = V[rows, :, :k]
+            P[rows] = M[rows] - np.matmul(Vk * lam[rows, None, :k],
+                                          np.swapaxes(Vk, 1, 2).conj())
+        else:
+            Vk = V[rows, :, k:]
+            P[rows] = np.matmul(Vk * lam[rows, None, k:], np.swapaxes(Vk, 1, 2).conj())
+    return P
+
+
 def cone(prob: SplitProblem, s: np.ndarray) -> np.ndarray:
     """Pi_K(s): every block's matrix with its negative eigenvalues set to zero.
 
@@ -67,19 +85,8 @@ def cone(prob: SplitProblem, s: np.ndarray) -> np.ndarray:
         lam, V = np.linalg.eigh(M)
         if n <= FULL_PRODUCT_MAX:
             P = np.matmul(V * np.maximum(lam, 0.0)[:, None, :], np.swapaxes(V, 1, 2).conj())
-            Y[:, cols] = (tr.to_coefficients(P) * (D / n)).reshape(B, -1)
-            continue
-        neg = np.sum(lam < 0, axis=1)
-        P = np.empty_like(M)
-        for k in np.unique(neg):
-            rows = np.flatnonzero(neg == k)
-            if k <= n // 2:
-                Vk = V[rows, :, :k]
-                P[rows] = M[rows] - np.matmul(Vk * lam[rows, None, :k],
-                                              np.swapaxes(Vk, 1, 2).conj())
-            else:
-                Vk = V[rows, :, k:]
-                P[rows] = np.matmul(Vk * lam[rows, None, k:], np.swapaxes(Vk, 1, 2).conj())
+        else:
+            P = _rebuild_from_smaller_side(M, lam, V)
         Y[:, cols] = (tr.to_coefficients(P) * (D / n)).reshape(B, -1)
     return Y
 
